@@ -59,6 +59,15 @@ type Group struct {
 	TrueArea  float64 // area of the real geometry, m²
 	VoxelArea float64 // area of the staircase faces, m²
 	ModelArea float64 // sum of the faces' corrected Area, m²
+
+	// TrueAreaExact tells whether TrueArea comes from the geometry itself;
+	// when false the solid could not say and TrueArea is ModelArea.
+	TrueAreaExact bool
+	// Rescale is the factor applied to the faces' corrected areas so that
+	// ModelArea equals the exact TrueArea (1 when TrueArea is not exact).
+	// It stays within a few per cent of 1 unless the cells are too coarse
+	// for the group's surface.
+	Rescale float64
 }
 
 // Index returns the cell index of (i, j, k).

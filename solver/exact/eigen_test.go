@@ -33,7 +33,10 @@ func TestOneTermMatchesTextbookTable(t *testing.T) {
 		{10, 1.4289, 1.2620, 2.1795, 1.5677, 2.8363, 1.9249},
 		{50, 1.5400, 1.2727, 2.3572, 1.6002, 3.0788, 1.9962},
 		{100, 1.5552, 1.2731, 2.3809, 1.6015, 3.1102, 1.9990},
-		{inf, 1.5708, 1.2732, 2.4048, 1.6021, 3.1416, 2.0000},
+		// The recalled cylinder C1 at Bi = ∞, 1.6021, is further off than
+		// rounding allows, so it is left out here; TestEigenvaluesAtInfiniteBiot
+		// checks it against the closed form 2/(j0,1·J1(j0,1)).
+		{inf, 1.5708, 1.2732, 2.4048, math.NaN(), 3.1416, 2.0000},
 	}
 	const tol = 1e-4 + 1e-12
 	for _, row := range rows {
@@ -49,7 +52,7 @@ func TestOneTermMatchesTextbookTable(t *testing.T) {
 			if err != nil {
 				t.Fatalf("%v, Bi = %g: %v", c.shape, row.bi, err)
 			}
-			if math.Abs(lambda-c.lambda) > tol || math.Abs(coeff-c.coeff) > tol {
+			if math.Abs(lambda-c.lambda) > tol || math.Abs(coeff-c.coeff) > tol && !math.IsNaN(c.coeff) {
 				t.Errorf("%v, Bi = %g: λ1, C1 = %.6f, %.6f; table %.4f, %.4f",
 					c.shape, row.bi, lambda, coeff, c.lambda, c.coeff)
 			}
@@ -167,7 +170,12 @@ func TestBesselZeros(t *testing.T) {
 	}
 }
 
-// At Bi → ∞ the roots are the poles of tan and cot and the zeros of J0.
+// At Bi → ∞ the roots are the poles of tan and cot and the zeros of J0
+// (zeros from Abramowitz and Stegun Table 9.5, from memory), and the
+// coefficients reduce to 4(−1)^(n+1)/((2n−1)π), 2/(λn·J1(λn)) and
+// 2(−1)^(n+1) (Carslaw and Jaeger, Conduction of Heat in Solids, 2nd ed.,
+// chapters 3, 7 and 9,
+// the surface held at the fluid temperature, from memory).
 func TestEigenvaluesAtInfiniteBiot(t *testing.T) {
 	t.Parallel()
 	for _, s := range allShapes {
@@ -180,14 +188,21 @@ func TestEigenvaluesAtInfiniteBiot(t *testing.T) {
 			t.Fatal(err)
 		}
 		for i, l := range lambdas {
-			var want float64
+			var want, wantC float64
+			sign := float64(1 - 2*(i%2)) // (−1)^(n+1)
 			switch s {
 			case PlaneWall:
 				want = (float64(i) + 0.5) * math.Pi
+				wantC = 4 * sign / ((2*float64(i) + 1) * math.Pi)
 			case InfiniteCylinder:
 				want = []float64{2.404825557695773, 5.520078110286311, 8.653727912911013, 11.79153443901428, 14.93091770848779}[i]
+				wantC = 2 / (want * math.J1(want))
 			case Sphere:
 				want = float64(i+1) * math.Pi
+				wantC = 2 * sign
+			}
+			if c := s.coefficient(l); math.Abs(c-wantC) > 1e-13 {
+				t.Errorf("%v root %d: C = %.16g, want %.16g", s, i+1, c, wantC)
 			}
 			if math.Abs(l-want) > 1e-13*want || math.Abs(near[i]-want) > 1e-10*want {
 				t.Errorf("%v root %d: Bi = ∞ gives %.16g, Bi = 1e12 gives %.16g, want %.16g", s, i+1, l, near[i], want)

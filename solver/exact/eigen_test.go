@@ -60,9 +60,9 @@ func TestOneTermMatchesTextbookTable(t *testing.T) {
 	}
 }
 
-// The eigenvalue equations themselves (Incropera 6th ed., eqs. 5.39c,
-// 5.50c and 5.50c-sphere, from memory) evaluated in their textbook form,
-// independently of the pole-free form the solver iterates on.
+// The eigenvalue equations (Incropera 6th ed., sections 5.5 and 5.6, from
+// memory) evaluated in their textbook form, independently of the pole-free
+// form the solver iterates on.
 func TestEigenvaluesSatisfyTheirEquations(t *testing.T) {
 	t.Parallel()
 	equation := map[Shape]func(l float64) float64{
@@ -174,8 +174,7 @@ func TestBesselZeros(t *testing.T) {
 // (zeros from Abramowitz and Stegun Table 9.5, from memory), and the
 // coefficients reduce to 4(−1)^(n+1)/((2n−1)π), 2/(λn·J1(λn)) and
 // 2(−1)^(n+1) (Carslaw and Jaeger, Conduction of Heat in Solids, 2nd ed.,
-// chapters 3, 7 and 9,
-// the surface held at the fluid temperature, from memory).
+// chapters 3, 7 and 9, surface held at the fluid temperature, from memory).
 func TestEigenvaluesAtInfiniteBiot(t *testing.T) {
 	t.Parallel()
 	for _, s := range allShapes {

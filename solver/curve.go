@@ -1,0 +1,63 @@
+package solver
+
+import "sort"
+
+// At returns the curve's value at temperature t: linear between points,
+// constant beyond the ends.
+func (c Curve) At(t float64) float64 {
+	n := len(c.T)
+	if n == 1 || t <= c.T[0] {
+		return c.V[0]
+	}
+	if t >= c.T[n-1] {
+		return c.V[n-1]
+	}
+	i := sort.SearchFloat64s(c.T, t) // c.T[i-1] < t <= c.T[i]
+	w := (t - c.T[i-1]) / (c.T[i] - c.T[i-1])
+	return c.V[i-1] + w*(c.V[i]-c.V[i-1])
+}
+
+// isConstant reports whether the curve has the same value everywhere.
+func (c Curve) isConstant() bool {
+	for _, v := range c.V[1:] {
+		if v != c.V[0] {
+			return false
+		}
+	}
+	return true
+}
+
+// enthalpy is ∫cp dT of one material measured from a reference temperature,
+// J/kg. Storing energy as enthalpy instead of cp·ΔT keeps the balance exact
+// when cp varies with temperature.
+type enthalpy struct {
+	cp  Curve
+	cum []float64 // ∫cp dT from cp.T[0] to cp.T[i]
+	ref float64   // integral from cp.T[0] to the reference temperature
+}
+
+func newEnthalpy(cp Curve, reference float64) enthalpy {
+	e := enthalpy{cp: cp, cum: make([]float64, len(cp.T))}
+	for i := 1; i < len(cp.T); i++ {
+		e.cum[i] = e.cum[i-1] + 0.5*(cp.V[i]+cp.V[i-1])*(cp.T[i]-cp.T[i-1])
+	}
+	e.ref = e.fromStart(reference)
+	return e
+}
+
+// fromStart integrates cp from the curve's first point to t (negative below it).
+func (e *enthalpy) fromStart(t float64) float64 {
+	c := e.cp
+	n := len(c.T)
+	if n == 1 || t <= c.T[0] {
+		return c.V[0] * (t - c.T[0])
+	}
+	if t >= c.T[n-1] {
+		return e.cum[n-1] + c.V[n-1]*(t-c.T[n-1])
+	}
+	i := sort.SearchFloat64s(c.T, t)
+	return e.cum[i-1] + 0.5*(c.V[i-1]+c.At(t))*(t-c.T[i-1])
+}
+
+// At returns the enthalpy at t relative to the reference temperature, J/kg.
+func (e *enthalpy) At(t float64) float64 { return e.fromStart(t) - e.ref }

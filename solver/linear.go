@@ -1,0 +1,234 @@
+package solver
+
+import (
+	"context"
+	"math"
+	"sync"
+)
+
+// span is a run [lo, hi) of consecutive part cells in one grid row, in
+// padded array indices. Loops run over spans so that cells outside the part
+// cost nothing; rowStart is the padded index of the row's first cell.
+type span struct {
+	lo, hi, rowStart int
+	y, z             int
+}
+
+// stencil is the 7-point operator (A·x)_c = diag_c·x_c − Σ g·x_neighbour on
+// padded arrays over the whole grid box: gx[c] couples c and c+1, gy[c]
+// couples c and c+nx, gz[c] couples c and c+nx·ny, and a coefficient is 0
+// where either cell lies outside the part. Whole-box arrays keep the
+// neighbour arithmetic trivial; compacting to part cells would save memory
+// on sparse parts.
+type stencil struct {
+	nx, nxy          int
+	diag, gx, gy, gz []float64
+}
+
+// linearSolver solves the symmetric positive definite system of one Newton
+// pass. It is an interface so that the preconditioner can be exchanged.
+type linearSolver interface {
+	// solve improves x in place (warm start) until ‖b − A·x‖ ≤ tol·‖b‖ and
+	// returns the number of iterations.
+	solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error)
+}
+
+// ctxCheckEvery is how many iterations pass between looks at the context:
+// often enough that a cancel takes effect within milliseconds on large grids.
+const ctxCheckEvery = 4
+
+// workers runs one task on every slab at once: worker w works on slab w.
+// The goroutines live for one Solve so that an iteration starts no
+// goroutines and allocates nothing.
+type workers struct {
+	tasks []chan func(int)
+	wg    sync.WaitGroup
+}
+
+func newWorkers(n int) *workers {
+	ws := &workers{tasks: make([]chan func(int), n)}
+	for w := 1; w < n; w++ {
+		ch := make(chan func(int))
+		ws.tasks[w] = ch
+		go func() {
+			for task := range ch {
+				task(w)
+				ws.wg.Done()
+			}
+		}()
+	}
+	return ws
+}
+
+func (ws *workers) count() int { return len(ws.tasks) }
+
+// run calls task(w) for every worker and waits for all; worker 0 is the caller.
+func (ws *workers) run(task func(int)) {
+	ws.wg.Add(len(ws.tasks) - 1)
+	for w := 1; w < len(ws.tasks); w++ {
+		ws.tasks[w] <- task
+	}
+	task(0)
+	ws.wg.Wait()
+}
+
+func (ws *workers) stop() {
+	for _, ch := range ws.tasks[1:] {
+		close(ch)
+	}
+}
+
+// partial is one worker's share of a reduction, padded to its own cache line.
+type partial struct {
+	a, b, c float64
+	_       [40]byte
+}
+
+// jacobiCG is conjugate gradients with the diagonal as preconditioner,
+// parallel over z-slabs. The preconditioner is folded into the vector
+// updates (z = r/diag is never stored) to save memory traffic.
+type jacobiCG struct {
+	ws      *workers
+	slabs   [][]span
+	r, p, q []float64
+	sums    []partial
+
+	// operands of the running solve, read by the tasks
+	a     *stencil
+	b, x  []float64
+	alpha float64
+	beta  float64
+
+	startTask, productTask, updateTask, directionTask func(int)
+}
+
+func newJacobiCG(ws *workers, slabs [][]span, size int) *jacobiCG {
+	s := &jacobiCG{
+		ws: ws, slabs: slabs,
+		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
+		sums: make([]partial, ws.count()),
+	}
+	s.startTask = s.start
+	s.productTask = s.product
+	s.updateTask = s.update
+	s.directionTask = s.direction
+	return s
+}
+
+// reduce runs task on all slabs and returns the sums of the partials.
+func (s *jacobiCG) reduce(task func(int)) (a, b, c float64) {
+	s.ws.run(task)
+	for i := range s.sums {
+		a += s.sums[i].a
+		b += s.sums[i].b
+		c += s.sums[i].c
+	}
+	return a, b, c
+}
+
+func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error) {
+	s.a, s.b, s.x = a, b, x
+	defer func() { s.a, s.b, s.x = nil, nil, nil }()
+
+	rz, bb, rr := s.reduce(s.startTask)
+	limit := tol * tol * bb
+	if rr <= limit {
+		return 0, nil
+	}
+	// Jacobi-preconditioned CG on this operator needs about as many
+	// iterations as cells along the part; the cap only stops a breakdown.
+	cells := 0
+	for _, slab := range s.slabs {
+		for _, sp := range slab {
+			cells += sp.hi - sp.lo
+		}
+	}
+	maxIter := 1000 + 100*int(math.Cbrt(float64(cells)))
+	for it := 1; it <= maxIter; it++ {
+		if it%ctxCheckEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				return it, err
+			}
+		}
+		pq, _, _ := s.reduce(s.productTask)
+		if !(pq > 0) {
+			return it, ErrLinearSolve
+		}
+		s.alpha = rz / pq
+		rzNew, rr, _ := s.reduce(s.updateTask)
+		if rr <= limit {
+			return it, nil
+		}
+		s.beta = rzNew / rz
+		rz = rzNew
+		s.ws.run(s.directionTask)
+	}
+	return maxIter, ErrLinearSolve
+}
+
+// start sets r = b − A·x and p = r/diag; sums r·r/diag, b·b and r·r.
+func (s *jacobiCG) start(w int) {
+	a, x, b, r, p := s.a, s.x, s.b, s.r, s.p
+	nx, nxy := a.nx, a.nxy
+	var rz, bb, rr float64
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			ax := a.diag[c]*x[c] - a.gx[c]*x[c+1] - a.gx[c-1]*x[c-1] -
+				a.gy[c]*x[c+nx] - a.gy[c-nx]*x[c-nx] -
+				a.gz[c]*x[c+nxy] - a.gz[c-nxy]*x[c-nxy]
+			rc := b[c] - ax
+			r[c] = rc
+			z := rc / a.diag[c]
+			p[c] = z
+			rz += rc * z
+			bb += b[c] * b[c]
+			rr += rc * rc
+		}
+	}
+	s.sums[w] = partial{a: rz, b: bb, c: rr}
+}
+
+// product sets q = A·p and sums p·q.
+func (s *jacobiCG) product(w int) {
+	a, p, q := s.a, s.p, s.q
+	nx, nxy := a.nx, a.nxy
+	var pq float64
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			ap := a.diag[c]*p[c] - a.gx[c]*p[c+1] - a.gx[c-1]*p[c-1] -
+				a.gy[c]*p[c+nx] - a.gy[c-nx]*p[c-nx] -
+				a.gz[c]*p[c+nxy] - a.gz[c-nxy]*p[c-nxy]
+			q[c] = ap
+			pq += p[c] * ap
+		}
+	}
+	s.sums[w] = partial{a: pq}
+}
+
+// update steps x and r along p; sums r·r/diag and r·r.
+func (s *jacobiCG) update(w int) {
+	x, r, p, q, d := s.x, s.r, s.p, s.q, s.a.diag
+	alpha := s.alpha
+	var rz, rr float64
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			x[c] += alpha * p[c]
+			rc := r[c] - alpha*q[c]
+			r[c] = rc
+			rz += rc * rc / d[c]
+			rr += rc * rc
+		}
+	}
+	s.sums[w] = partial{a: rz, b: rr}
+}
+
+// direction sets p = r/diag + β·p.
+func (s *jacobiCG) direction(w int) {
+	r, p, d := s.r, s.p, s.a.diag
+	beta := s.beta
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			p[c] = r[c]/d[c] + beta*p[c]
+		}
+	}
+}

@@ -1,0 +1,521 @@
+package solver
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"slices"
+
+	"soakfarm/mesh"
+)
+
+// Errors of a run that started.
+var (
+	// ErrLinearSolve marks a linear solve that broke down or hit its iteration cap.
+	ErrLinearSolve = errors.New("linear solve did not converge")
+	// ErrNotConverged marks a step whose Newton passes did not settle even
+	// after the step was cut several times.
+	ErrNotConverged = errors.New("newton passes did not converge")
+)
+
+// Default stepping. The accuracy tests against exact solutions
+// (accuracy_test.go) are run with these values.
+const (
+	defaultMaxChange  = 5.0 // K
+	defaultStepsToEnd = 20  // MaxStep = End/defaultStepsToEnd
+	defaultTolerance  = 1e-8
+	// firstStepFourier is the cell Fourier number α·Δt/Δx² of the default
+	// first step (the boundary rate may make it shorter).
+	firstStepFourier = 1.0
+)
+
+// Control of steps and passes.
+const (
+	growthLimit  = 2.0 // largest ratio of one step to the one planned before
+	shrinkLimit  = 0.5 // smallest such ratio for an accepted step
+	rejectFactor = 2.0 // a step changing more than this times MaxChange is redone
+	// bdf2RatioLimit keeps variable-step BDF2 zero-stable (the bound is 1+√2).
+	bdf2RatioLimit = 2.0
+	// newtonTolerance is the Newton pass change, relative to the largest
+	// driving temperature difference, at which a step counts as settled.
+	newtonTolerance = 1e-6
+	maxPasses       = 30
+	maxRetries      = 8 // cuts of one step after failed passes
+	// minCellsPerWorker keeps small grids on one goroutine, where the
+	// hand-over would cost more than the work.
+	minCellsPerWorker = 4096
+)
+
+// Solve integrates p from its initial temperature to p.End (or until observe
+// returns true), calling observe with the initial state and after every
+// accepted step. observe may be nil.
+func Solve(ctx context.Context, p *Problem, observe Observer) (*Outcome, error) {
+	if err := p.Validate(); err != nil {
+		return nil, err
+	}
+	r := newRun(p)
+	defer r.ws.stop()
+	return r.integrate(ctx, observe)
+}
+
+// bdf holds the coefficients of one step: a0·E(n+1) − a1·E(n) + a2·E(n−1) = Δt·(heat in).
+// Backward Euler is a0 = a1 = 1, a2 = 0.
+type bdf struct{ a0, a1, a2 float64 }
+
+var backwardEulerCoefficients = bdf{1, 1, 0}
+
+// bdf2Coefficients returns variable-step BDF2 for step ratio ω = Δt(n)/Δt(n−1).
+func bdf2Coefficients(omega float64) bdf {
+	return bdf{(1 + 2*omega) / (1 + omega), 1 + omega, omega * omega / (1 + omega)}
+}
+
+type material struct {
+	rhoV float64 // kg per cell
+	k    Curve
+	cp   Curve
+	h    enthalpy
+}
+
+// run is the working state of one Solve.
+type run struct {
+	p        *Problem
+	g        *mesh.Grid
+	stepping Stepping
+	pad      int // padded index of cell 0
+	slabs    [][]span
+	ws       *workers
+	lin      linearSolver
+	st       stencil
+	mats     []material
+
+	// t is the current iterate and, between steps, the accepted solution;
+	// tn and tnm1 are the two accepted solutions before; tstar is the
+	// linearisation point of a Newton pass.
+	t, tn, tnm1, tstar, b, k []float64
+
+	phases      []*ExposurePhase // per surface group, for the current step
+	linear      bool             // constant properties and no radiation: one pass per step
+	constantK   bool
+	newtonTol   float64
+	phaseStarts []float64
+
+	// operands of the assembly tasks
+	dt              float64
+	coef            bdf
+	kTask, fillTask func(int)
+}
+
+func newRun(p *Problem) *run {
+	g := p.Grid
+	nx, nxy := g.N[0], g.N[0]*g.N[1]
+	size := g.CellCount() + 2*nxy
+	r := &run{
+		p: p, g: g, pad: nxy, stepping: p.Stepping,
+		st: stencil{nx: nx, nxy: nxy, diag: make([]float64, size),
+			gx: make([]float64, size), gy: make([]float64, size), gz: make([]float64, size)},
+		t: make([]float64, size), tn: make([]float64, size), tnm1: make([]float64, size),
+		tstar: make([]float64, size), b: make([]float64, size), k: make([]float64, size),
+		phases: make([]*ExposurePhase, len(g.Groups)),
+	}
+	vol := g.CellSize * g.CellSize * g.CellSize
+	r.linear, r.constantK = true, true
+	for _, m := range p.Materials {
+		r.mats = append(r.mats, material{rhoV: m.Density * vol, k: m.Conductivity, cp: m.SpecificHeat,
+			h: newEnthalpy(m.SpecificHeat, p.Initial)})
+		if !m.Conductivity.isConstant() {
+			r.constantK, r.linear = false, false
+		}
+		if !m.SpecificHeat.isConstant() {
+			r.linear = false
+		}
+	}
+	drive := 1.0 // K, floor for a problem with no driving difference
+	for _, e := range p.Exposures {
+		for _, ph := range e.Phases {
+			if ph.Start > 0 {
+				r.phaseStarts = append(r.phaseStarts, ph.Start)
+			}
+			if ph.H > 0 {
+				drive = math.Max(drive, math.Abs(ph.Fluid-p.Initial))
+			}
+			if ph.Emissivity > 0 {
+				r.linear = false
+				drive = math.Max(drive, math.Abs(ph.Surroundings-p.Initial))
+			}
+		}
+	}
+	r.newtonTol = newtonTolerance * drive
+
+	threads := p.Threads
+	if threads == 0 {
+		threads = runtime.GOMAXPROCS(0)
+	}
+	r.slabs = partition(g, r.pad, threads)
+	r.ws = newWorkers(len(r.slabs))
+	r.lin = newJacobiCG(r.ws, r.slabs, size)
+	r.kTask = r.conductivities
+	r.fillTask = r.fill
+	r.stepping = r.defaults()
+	return r
+}
+
+// partition finds the runs of part cells and splits the grid into at most
+// `threads` slabs of whole z-planes holding about equal numbers of part cells.
+func partition(g *mesh.Grid, pad, threads int) [][]span {
+	nx, ny, nz := g.N[0], g.N[1], g.N[2]
+	planes := make([][]span, nz)
+	total := 0
+	for z := range nz {
+		for y := range ny {
+			row := g.Index(0, y, z)
+			for x := 0; x < nx; {
+				if g.Region[row+x] == 0 {
+					x++
+					continue
+				}
+				lo := x
+				for x < nx && g.Region[row+x] != 0 {
+					x++
+				}
+				planes[z] = append(planes[z], span{lo: pad + row + lo, hi: pad + row + x, rowStart: pad + row, y: y, z: z})
+				total += x - lo
+			}
+		}
+	}
+	n := min(threads, max(1, total/minCellsPerWorker), nz)
+	slabs := make([][]span, n)
+	done := 0
+	w := 0
+	for z := range nz {
+		slabs[w] = append(slabs[w], planes[z]...)
+		for _, sp := range planes[z] {
+			done += sp.hi - sp.lo
+		}
+		if w < n-1 && done*n >= (w+1)*total {
+			w++
+		}
+	}
+	return slabs
+}
+
+// defaults fills unset stepping fields.
+func (r *run) defaults() Stepping {
+	s := r.p.Stepping
+	if s.Scheme == "" {
+		s.Scheme = BackwardEuler
+	}
+	if s.MaxChange == 0 {
+		s.MaxChange = defaultMaxChange
+	}
+	if s.MaxStep == 0 {
+		s.MaxStep = r.p.End / defaultStepsToEnd
+	}
+	if s.Tolerance == 0 {
+		s.Tolerance = defaultTolerance
+	}
+	if s.FirstStep == 0 {
+		s.FirstStep = min(r.firstStep(s.MaxChange), s.MaxStep)
+	}
+	return s
+}
+
+// firstStep is the smaller of the step at cell Fourier number
+// firstStepFourier and the step in which the initial surface heat flow
+// would change a cell by maxChange.
+func (r *run) firstStep(maxChange float64) float64 {
+	g, p := r.g, r.p
+	h := g.CellSize
+	step := math.Inf(1)
+	for _, m := range r.mats {
+		rhoCp := m.rhoV / (h * h * h) * m.cp.At(p.Initial)
+		step = min(step, firstStepFourier*h*h*rhoCp/m.k.At(p.Initial))
+	}
+	rate := make(map[int32]float64)
+	for _, f := range g.Faces {
+		m := &r.mats[g.Region[f.Cell]-1]
+		ph := &p.Exposures[f.Group].Phases[0]
+		_, q, _ := faceExchange(halfCellConductance(m.k.At(p.Initial), h), f.Area, ph, p.Initial)
+		rate[f.Cell] += math.Abs(q) / (m.rhoV * m.cp.At(p.Initial))
+	}
+	for _, v := range rate {
+		if v > 0 {
+			step = min(step, maxChange/v)
+		}
+	}
+	return step
+}
+
+// forParts calls fn for every part cell index (padded).
+func (r *run) forParts(fn func(c int, m *material)) {
+	for _, slab := range r.slabs {
+		for _, sp := range slab {
+			for c := sp.lo; c < sp.hi; c++ {
+				fn(c, &r.mats[r.g.Region[c-r.pad]-1])
+			}
+		}
+	}
+}
+
+func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error) {
+	p, s := r.p, r.stepping
+	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = p.Initial, p.Initial, p.Initial })
+	n := r.g.CellCount()
+	state := &State{T: r.t[r.pad : r.pad+n]}
+	out := &Outcome{}
+	if observe != nil && observe(state) {
+		return out, nil
+	}
+	landings := r.landings()
+	next := 0
+	time, dt, dtPrev := 0.0, s.FirstStep, 0.0
+	minStep := p.End * 1e-14
+	var lastIncrement float64 // boundary heat of the previous step, for BDF2
+	for retries := 0; time < p.End; {
+		if err := ctx.Err(); err != nil {
+			return out, fmt.Errorf("solve at t = %g s: %w", time, err)
+		}
+		for landings[next] <= time {
+			next++
+		}
+		h, lands := dt, false
+		if remaining := landings[next] - time; h >= remaining {
+			h, lands = remaining, true
+		} else if h > remaining/2 {
+			h = remaining / 2 // two equal steps instead of one and a sliver
+		}
+		coef := backwardEulerCoefficients
+		if s.Scheme == BDF2 && dtPrev > 0 && !slices.Contains(r.phaseStarts, time) {
+			if h > bdf2RatioLimit*dtPrev {
+				h, lands = bdf2RatioLimit*dtPrev, false
+			}
+			coef = bdf2Coefficients(h / dtPrev)
+		}
+		iters, err := r.step(ctx, time, h, dtPrev, coef)
+		state.Iterations += iters
+		state.TotalIterations += int64(iters)
+		if err != nil {
+			if ctx.Err() != nil {
+				return out, fmt.Errorf("solve at t = %g s: %w", time, ctx.Err())
+			}
+			if (errors.Is(err, ErrNotConverged) || errors.Is(err, ErrLinearSolve)) && retries < maxRetries {
+				retries++
+				dt = h / 4
+				continue
+			}
+			return out, fmt.Errorf("solve: step from t = %g s of %g s: %w", time, h, err)
+		}
+		change := r.largestChange()
+		if change > rejectFactor*s.MaxChange && h > minStep {
+			dt = h * max(0.1, min(shrinkLimit, 0.9*s.MaxChange/change))
+			continue
+		}
+		retries = 0
+
+		heat := h * r.boundaryFlow()
+		if coef.a2 != 0 {
+			heat = (heat + coef.a2*lastIncrement) / coef.a0
+		}
+		lastIncrement = heat
+		state.BoundaryHeat += heat
+		state.StoredEnergy = r.storedEnergy()
+		if lands {
+			time = landings[next]
+		} else {
+			time += h
+		}
+		state.Time = time
+		state.Step++
+		r.tnm1, r.tn = r.tn, r.tnm1
+		copy(r.tn, r.t)
+		out.Steps, out.TotalIterations, out.EndTime = state.Step, state.TotalIterations, time
+		out.EnergyImbalance = imbalance(state.StoredEnergy, state.BoundaryHeat)
+		stop := observe != nil && observe(state)
+		state.Iterations = 0
+		if stop {
+			break
+		}
+
+		grown := h * s.MaxChange / change
+		if change == 0 {
+			grown = math.Inf(1)
+		}
+		dtPrev = h
+		dt = min(max(grown, shrinkLimit*dt), growthLimit*dt, s.MaxStep)
+	}
+	return out, nil
+}
+
+func imbalance(stored, heat float64) float64 {
+	if stored == 0 {
+		return 0
+	}
+	return math.Abs(stored-heat) / math.Abs(stored)
+}
+
+// landings returns the sorted times a step must end on, End last.
+func (r *run) landings() []float64 {
+	var l []float64
+	for _, t := range append(slices.Clone(r.p.Landings), r.phaseStarts...) {
+		if t > 0 && t < r.p.End {
+			l = append(l, t)
+		}
+	}
+	l = append(l, r.p.End)
+	slices.Sort(l)
+	return slices.Compact(l)
+}
+
+// step advances from the accepted solution at time t by h into r.t.
+func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterations int, err error) {
+	for i := range r.phases {
+		r.phases[i] = phaseBefore(&r.p.Exposures[i], t+h/2)
+	}
+	// Extrapolate the last two solutions: the first linearisation point and
+	// the warm start of the linear solver.
+	ratio := 0.0
+	if dtPrev > 0 {
+		ratio = h / dtPrev
+	}
+	r.forParts(func(c int, _ *material) { r.t[c] = r.tn[c] + ratio*(r.tn[c]-r.tnm1[c]) })
+	r.dt, r.coef = h, coef
+	for pass := 1; ; pass++ {
+		copy(r.tstar, r.t)
+		if !r.constantK || pass == 1 {
+			r.ws.run(r.kTask)
+		}
+		r.ws.run(r.fillTask)
+		r.addFaces()
+		n, err := r.lin.solve(ctx, &r.st, r.b, r.t, r.stepping.Tolerance)
+		iterations += n
+		if err != nil {
+			return iterations, err
+		}
+		if r.linear {
+			return iterations, nil
+		}
+		settled := true
+		r.forParts(func(c int, _ *material) {
+			if math.Abs(r.t[c]-r.tstar[c]) > r.newtonTol {
+				settled = false
+			}
+		})
+		if settled {
+			return iterations, nil
+		}
+		if pass == maxPasses {
+			return iterations, fmt.Errorf("%w after %d passes", ErrNotConverged, pass)
+		}
+	}
+}
+
+// conductivities sets k at the linearisation point for the cells of slab w.
+func (r *run) conductivities(w int) {
+	for _, sp := range r.slabs[w] {
+		m := &r.mats[r.g.Region[sp.lo-r.pad]-1]
+		for c := sp.lo; c < sp.hi; c++ {
+			if c > sp.lo && r.g.Region[c-r.pad] != r.g.Region[c-1-r.pad] {
+				m = &r.mats[r.g.Region[c-r.pad]-1]
+			}
+			r.k[c] = m.k.At(r.tstar[c])
+		}
+	}
+}
+
+// fill sets the operator and right-hand side of the Newton pass for slab w:
+// a0·ρV·(H* + cp*·(T − T*))/Δt + Σ G·(T − T_nb) = ρV·(a1·H(n) − a2·H(n−1))/Δt,
+// enthalpy H linearised at T*, face conductances G at the conductivity of T*.
+func (r *run) fill(w int) {
+	g, k := r.g, r.k
+	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
+	dx := g.CellSize
+	pair := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
+	for _, sp := range r.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			m := &r.mats[g.Region[c-r.pad]-1]
+			kc := k[c]
+			var gxp, gxm, gyp, gym, gzp, gzm float64
+			if c+1 < sp.rowStart+nx {
+				gxp = pair(kc, k[c+1])
+			}
+			if c > sp.rowStart {
+				gxm = pair(kc, k[c-1])
+			}
+			if sp.y < ny-1 {
+				gyp = pair(kc, k[c+nx])
+			}
+			if sp.y > 0 {
+				gym = pair(kc, k[c-nx])
+			}
+			if sp.z < nz-1 {
+				gzp = pair(kc, k[c+nxy])
+			}
+			if sp.z > 0 {
+				gzm = pair(kc, k[c-nxy])
+			}
+			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
+
+			ts := r.tstar[c]
+			capacity := m.rhoV / r.dt
+			cp := m.cp.At(ts)
+			old := a1 * m.h.At(r.tn[c])
+			if a2 != 0 {
+				old -= a2 * m.h.At(r.tnm1[c])
+			}
+			r.st.diag[c] = a0*capacity*cp + gxp + gxm + gyp + gym + gzp + gzm
+			r.b[c] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
+		}
+	}
+}
+
+// addFaces adds the linearised surface exchange of every boundary face.
+func (r *run) addFaces() {
+	g := r.g
+	for i := range g.Faces {
+		f := &g.Faces[i]
+		ph := r.phases[f.Group]
+		if ph.insulated() {
+			continue
+		}
+		c := r.pad + int(f.Cell)
+		ts := r.tstar[c]
+		_, q, gl := faceExchange(halfCellConductance(r.k[c], g.CellSize), f.Area, ph, ts)
+		r.st.diag[c] += gl
+		r.b[c] += q + gl*ts
+	}
+}
+
+// boundaryFlow returns the heat flow into the part through its surface at
+// the current solution, W.
+func (r *run) boundaryFlow() float64 {
+	g := r.g
+	sum := 0.0
+	for i := range g.Faces {
+		f := &g.Faces[i]
+		ph := r.phases[f.Group]
+		if ph.insulated() {
+			continue
+		}
+		c := r.pad + int(f.Cell)
+		m := &r.mats[g.Region[f.Cell]-1]
+		_, q, _ := faceExchange(halfCellConductance(m.k.At(r.t[c]), g.CellSize), f.Area, ph, r.t[c])
+		sum += q
+	}
+	return sum
+}
+
+// storedEnergy returns Σ ρV·H(T) over the part, J since the start.
+func (r *run) storedEnergy() float64 {
+	sum := 0.0
+	r.forParts(func(c int, m *material) { sum += m.rhoV * m.h.At(r.t[c]) })
+	return sum
+}
+
+// largestChange returns max |T − T(n)| over the part.
+func (r *run) largestChange() float64 {
+	change := 0.0
+	r.forParts(func(c int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[c])) })
+	return change
+}

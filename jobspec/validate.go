@@ -381,10 +381,13 @@ func (c *checker) grid(spec *soakv1.JobSpec, lim Limits) {
 }
 
 func countText(n float64) string {
-	if n < 1e6 {
+	switch {
+	case n < 1e6:
 		return fmt.Sprintf("%.0f", n)
+	case n < 1e8:
+		return fmt.Sprintf("%.3g M", n/1e6)
 	}
-	return fmt.Sprintf("%.3g M", n/1e6)
+	return fmt.Sprintf("%.0f M", n/1e6)
 }
 
 func bytesText(b float64) string {

@@ -57,8 +57,11 @@ type Summary struct {
 	Scheme              string       `protobuf:"bytes,21,opt,name=scheme,proto3" json:"scheme,omitempty"`
 	WallSeconds         float64      `protobuf:"fixed64,22,opt,name=wall_seconds,json=wallSeconds,proto3" json:"wall_seconds,omitempty"`
 	Artifacts           []string     `protobuf:"bytes,23,rep,name=artifacts,proto3" json:"artifacts,omitempty"`
-	unknownFields       protoimpl.UnknownFields
-	sizeCache           protoimpl.SizeCache
+	// How far to trust this result: hand estimates, a cross-check of the
+	// solver against exact solutions at the job's resolution, and a verdict.
+	Verification  *Verification `protobuf:"bytes,24,opt,name=verification,proto3" json:"verification,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *Summary) Reset() {
@@ -248,6 +251,13 @@ func (x *Summary) GetWallSeconds() float64 {
 func (x *Summary) GetArtifacts() []string {
 	if x != nil {
 		return x.Artifacts
+	}
+	return nil
+}
+
+func (x *Summary) GetVerification() *Verification {
+	if x != nil {
+		return x.Verification
 	}
 	return nil
 }
@@ -531,11 +541,794 @@ func (x *GridSummary) GetMemoryEstimateBytes() uint64 {
 	return 0
 }
 
+// Verification says how far a result can be trusted.
+type Verification struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hand methods for the same part, exposure and milestones.
+	Estimate *HandEstimate `protobuf:"bytes,1,opt,name=estimate,proto3" json:"estimate,omitempty"`
+	// Each milestone: the 3-D answer beside the hand answers.
+	Milestones []*MilestoneEstimate `protobuf:"bytes,2,rep,name=milestones,proto3" json:"milestones,omitempty"`
+	// The solver on simple shapes with exact solutions, at the job's
+	// resolution and over its Fourier range.
+	CrossChecks []*CrossCheck `protobuf:"bytes,3,rep,name=cross_checks,json=crossChecks,proto3" json:"cross_checks,omitempty"`
+	// The job's own energy imbalance against its limit.
+	EnergyBalance *Check `protobuf:"bytes,4,opt,name=energy_balance,json=energyBalance,proto3" json:"energy_balance,omitempty"`
+	// "checked", "check-with-care" or "not-trustworthy".
+	Verdict string `protobuf:"bytes,5,opt,name=verdict,proto3" json:"verdict,omitempty"`
+	// Why the verdict is what it is, most serious first.
+	Reasons []string `protobuf:"bytes,6,rep,name=reasons,proto3" json:"reasons,omitempty"`
+	// Wall time of the whole verification, s.
+	WallSeconds   float64 `protobuf:"fixed64,7,opt,name=wall_seconds,json=wallSeconds,proto3" json:"wall_seconds,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Verification) Reset() {
+	*x = Verification{}
+	mi := &file_soak_v1_result_proto_msgTypes[5]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Verification) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Verification) ProtoMessage() {}
+
+func (x *Verification) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[5]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Verification.ProtoReflect.Descriptor instead.
+func (*Verification) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{5}
+}
+
+func (x *Verification) GetEstimate() *HandEstimate {
+	if x != nil {
+		return x.Estimate
+	}
+	return nil
+}
+
+func (x *Verification) GetMilestones() []*MilestoneEstimate {
+	if x != nil {
+		return x.Milestones
+	}
+	return nil
+}
+
+func (x *Verification) GetCrossChecks() []*CrossCheck {
+	if x != nil {
+		return x.CrossChecks
+	}
+	return nil
+}
+
+func (x *Verification) GetEnergyBalance() *Check {
+	if x != nil {
+		return x.EnergyBalance
+	}
+	return nil
+}
+
+func (x *Verification) GetVerdict() string {
+	if x != nil {
+		return x.Verdict
+	}
+	return ""
+}
+
+func (x *Verification) GetReasons() []string {
+	if x != nil {
+		return x.Reasons
+	}
+	return nil
+}
+
+func (x *Verification) GetWallSeconds() float64 {
+	if x != nil {
+		return x.WallSeconds
+	}
+	return 0
+}
+
+// Check is one figure measured against a stated limit.
+type Check struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	Value float64                `protobuf:"fixed64,1,opt,name=value,proto3" json:"value,omitempty"`
+	Limit float64                `protobuf:"fixed64,2,opt,name=limit,proto3" json:"limit,omitempty"`
+	// "pass" when value <= limit, otherwise "warn".
+	Status        string `protobuf:"bytes,3,opt,name=status,proto3" json:"status,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Check) Reset() {
+	*x = Check{}
+	mi := &file_soak_v1_result_proto_msgTypes[6]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Check) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Check) ProtoMessage() {}
+
+func (x *Check) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[6]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Check.ProtoReflect.Descriptor instead.
+func (*Check) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{6}
+}
+
+func (x *Check) GetValue() float64 {
+	if x != nil {
+		return x.Value
+	}
+	return 0
+}
+
+func (x *Check) GetLimit() float64 {
+	if x != nil {
+		return x.Limit
+	}
+	return 0
+}
+
+func (x *Check) GetStatus() string {
+	if x != nil {
+		return x.Status
+	}
+	return ""
+}
+
+// HandEstimate holds the quick answers an engineer would work by hand,
+// from the true geometry (no mesh, no 3-D solve).
+type HandEstimate struct {
+	state    protoimpl.MessageState `protogen:"open.v1"`
+	VolumeM3 float64                `protobuf:"fixed64,1,opt,name=volume_m3,json=volumeM3,proto3" json:"volume_m3,omitempty"`
+	// True area of the faces some exposure covers; the rest are insulated.
+	ExposedAreaM2 float64 `protobuf:"fixed64,2,opt,name=exposed_area_m2,json=exposedAreaM2,proto3" json:"exposed_area_m2,omitempty"`
+	// Lc = V / As with the exposed area, m.
+	CharacteristicLengthM float64 `protobuf:"fixed64,3,opt,name=characteristic_length_m,json=characteristicLengthM,proto3" json:"characteristic_length_m,omitempty"`
+	// Area-weighted convective coefficient of the exposed faces, W/m2K.
+	HConvectionWM2K float64 `protobuf:"fixed64,4,opt,name=h_convection_w_m2k,json=hConvectionWM2k,proto3" json:"h_convection_w_m2k,omitempty"`
+	// Radiation as an equivalent coefficient eps*sigma*(Tm^2+Tsur^2)(Tm+Tsur)
+	// at the mean Tm of the initial and surroundings temperatures, W/m2K.
+	HRadiationWM2K float64 `protobuf:"fixed64,5,opt,name=h_radiation_w_m2k,json=hRadiationWM2k,proto3" json:"h_radiation_w_m2k,omitempty"`
+	// h_convection + h_radiation, W/m2K.
+	HEffectiveWM2K float64 `protobuf:"fixed64,6,opt,name=h_effective_w_m2k,json=hEffectiveWM2k,proto3" json:"h_effective_w_m2k,omitempty"`
+	// The one fluid temperature the hand methods use, deg C.
+	FluidC   float64 `protobuf:"fixed64,7,opt,name=fluid_c,json=fluidC,proto3" json:"fluid_c,omitempty"`
+	InitialC float64 `protobuf:"fixed64,8,opt,name=initial_c,json=initialC,proto3" json:"initial_c,omitempty"`
+	// Temperature the properties are taken at, deg C.
+	PropertyTempC    float64 `protobuf:"fixed64,9,opt,name=property_temp_c,json=propertyTempC,proto3" json:"property_temp_c,omitempty"`
+	DensityKgM3      float64 `protobuf:"fixed64,10,opt,name=density_kg_m3,json=densityKgM3,proto3" json:"density_kg_m3,omitempty"`
+	ConductivityWMk  float64 `protobuf:"fixed64,11,opt,name=conductivity_w_mk,json=conductivityWMk,proto3" json:"conductivity_w_mk,omitempty"`
+	SpecificHeatJKgk float64 `protobuf:"fixed64,12,opt,name=specific_heat_j_kgk,json=specificHeatJKgk,proto3" json:"specific_heat_j_kgk,omitempty"`
+	DiffusivityM2S   float64 `protobuf:"fixed64,13,opt,name=diffusivity_m2_s,json=diffusivityM2S,proto3" json:"diffusivity_m2_s,omitempty"`
+	// h_effective * Lc / k.
+	BiotNumber float64 `protobuf:"fixed64,14,opt,name=biot_number,json=biotNumber,proto3" json:"biot_number,omitempty"`
+	// Lumped capacitance holds when Bi < 0.1 (common practice).
+	LumpedApplies bool `protobuf:"varint,15,opt,name=lumped_applies,json=lumpedApplies,proto3" json:"lumped_applies,omitempty"`
+	// rho * cp * Lc / h_effective, s.
+	TimeConstantS float64 `protobuf:"fixed64,16,opt,name=time_constant_s,json=timeConstantS,proto3" json:"time_constant_s,omitempty"`
+	// Radius of the sphere with the part's volume, m.
+	SphereRadiusM    float64 `protobuf:"fixed64,17,opt,name=sphere_radius_m,json=sphereRadiusM,proto3" json:"sphere_radius_m,omitempty"`
+	SphereBiotNumber float64 `protobuf:"fixed64,18,opt,name=sphere_biot_number,json=sphereBiotNumber,proto3" json:"sphere_biot_number,omitempty"`
+	// Half-thickness of the plane wall with the part's Lc, m.
+	WallHalfThicknessM float64              `protobuf:"fixed64,19,opt,name=wall_half_thickness_m,json=wallHalfThicknessM,proto3" json:"wall_half_thickness_m,omitempty"`
+	WallBiotNumber     float64              `protobuf:"fixed64,20,opt,name=wall_biot_number,json=wallBiotNumber,proto3" json:"wall_biot_number,omitempty"`
+	Milestones         []*MilestoneEstimate `protobuf:"bytes,21,rep,name=milestones,proto3" json:"milestones,omitempty"`
+	// Assumptions made and limits of the hand methods, in plain words.
+	Notes         []string `protobuf:"bytes,22,rep,name=notes,proto3" json:"notes,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *HandEstimate) Reset() {
+	*x = HandEstimate{}
+	mi := &file_soak_v1_result_proto_msgTypes[7]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *HandEstimate) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*HandEstimate) ProtoMessage() {}
+
+func (x *HandEstimate) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[7]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use HandEstimate.ProtoReflect.Descriptor instead.
+func (*HandEstimate) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{7}
+}
+
+func (x *HandEstimate) GetVolumeM3() float64 {
+	if x != nil {
+		return x.VolumeM3
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetExposedAreaM2() float64 {
+	if x != nil {
+		return x.ExposedAreaM2
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetCharacteristicLengthM() float64 {
+	if x != nil {
+		return x.CharacteristicLengthM
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetHConvectionWM2K() float64 {
+	if x != nil {
+		return x.HConvectionWM2K
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetHRadiationWM2K() float64 {
+	if x != nil {
+		return x.HRadiationWM2K
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetHEffectiveWM2K() float64 {
+	if x != nil {
+		return x.HEffectiveWM2K
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetFluidC() float64 {
+	if x != nil {
+		return x.FluidC
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetInitialC() float64 {
+	if x != nil {
+		return x.InitialC
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetPropertyTempC() float64 {
+	if x != nil {
+		return x.PropertyTempC
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetDensityKgM3() float64 {
+	if x != nil {
+		return x.DensityKgM3
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetConductivityWMk() float64 {
+	if x != nil {
+		return x.ConductivityWMk
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetSpecificHeatJKgk() float64 {
+	if x != nil {
+		return x.SpecificHeatJKgk
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetDiffusivityM2S() float64 {
+	if x != nil {
+		return x.DiffusivityM2S
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetBiotNumber() float64 {
+	if x != nil {
+		return x.BiotNumber
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetLumpedApplies() bool {
+	if x != nil {
+		return x.LumpedApplies
+	}
+	return false
+}
+
+func (x *HandEstimate) GetTimeConstantS() float64 {
+	if x != nil {
+		return x.TimeConstantS
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetSphereRadiusM() float64 {
+	if x != nil {
+		return x.SphereRadiusM
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetSphereBiotNumber() float64 {
+	if x != nil {
+		return x.SphereBiotNumber
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetWallHalfThicknessM() float64 {
+	if x != nil {
+		return x.WallHalfThicknessM
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetWallBiotNumber() float64 {
+	if x != nil {
+		return x.WallBiotNumber
+	}
+	return 0
+}
+
+func (x *HandEstimate) GetMilestones() []*MilestoneEstimate {
+	if x != nil {
+		return x.Milestones
+	}
+	return nil
+}
+
+func (x *HandEstimate) GetNotes() []string {
+	if x != nil {
+		return x.Notes
+	}
+	return nil
+}
+
+// MilestoneEstimate is one milestone's time by each hand method and, in a
+// verification, by the 3-D solve.
+type MilestoneEstimate struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	Name  string                 `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
+	// Time from the 3-D solve, s; absent in a bare estimate or when the
+	// solve did not reach the milestone.
+	SolvedTimeS   *float64      `protobuf:"fixed64,2,opt,name=solved_time_s,json=solvedTimeS,proto3,oneof" json:"solved_time_s,omitempty"`
+	Answers       []*HandAnswer `protobuf:"bytes,3,rep,name=answers,proto3" json:"answers,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *MilestoneEstimate) Reset() {
+	*x = MilestoneEstimate{}
+	mi := &file_soak_v1_result_proto_msgTypes[8]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *MilestoneEstimate) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*MilestoneEstimate) ProtoMessage() {}
+
+func (x *MilestoneEstimate) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[8]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use MilestoneEstimate.ProtoReflect.Descriptor instead.
+func (*MilestoneEstimate) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{8}
+}
+
+func (x *MilestoneEstimate) GetName() string {
+	if x != nil {
+		return x.Name
+	}
+	return ""
+}
+
+func (x *MilestoneEstimate) GetSolvedTimeS() float64 {
+	if x != nil && x.SolvedTimeS != nil {
+		return *x.SolvedTimeS
+	}
+	return 0
+}
+
+func (x *MilestoneEstimate) GetAnswers() []*HandAnswer {
+	if x != nil {
+		return x.Answers
+	}
+	return nil
+}
+
+// HandAnswer is one hand method's time for a milestone.
+type HandAnswer struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "lumped", "sphere-one-term" or "wall-one-term".
+	Method string `protobuf:"bytes,1,opt,name=method,proto3" json:"method,omitempty"`
+	// Absent when the method cannot give a time.
+	TimeS *float64 `protobuf:"fixed64,2,opt,name=time_s,json=timeS,proto3,oneof" json:"time_s,omitempty"`
+	// False when the method's assumptions fail; note says why.
+	Applies bool   `protobuf:"varint,3,opt,name=applies,proto3" json:"applies,omitempty"`
+	Note    string `protobuf:"bytes,4,opt,name=note,proto3" json:"note,omitempty"`
+	// Fourier number of the answer on the method's own length.
+	FourierNumber *float64 `protobuf:"fixed64,5,opt,name=fourier_number,json=fourierNumber,proto3,oneof" json:"fourier_number,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *HandAnswer) Reset() {
+	*x = HandAnswer{}
+	mi := &file_soak_v1_result_proto_msgTypes[9]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *HandAnswer) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*HandAnswer) ProtoMessage() {}
+
+func (x *HandAnswer) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[9]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use HandAnswer.ProtoReflect.Descriptor instead.
+func (*HandAnswer) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{9}
+}
+
+func (x *HandAnswer) GetMethod() string {
+	if x != nil {
+		return x.Method
+	}
+	return ""
+}
+
+func (x *HandAnswer) GetTimeS() float64 {
+	if x != nil && x.TimeS != nil {
+		return *x.TimeS
+	}
+	return 0
+}
+
+func (x *HandAnswer) GetApplies() bool {
+	if x != nil {
+		return x.Applies
+	}
+	return false
+}
+
+func (x *HandAnswer) GetNote() string {
+	if x != nil {
+		return x.Note
+	}
+	return ""
+}
+
+func (x *HandAnswer) GetFourierNumber() float64 {
+	if x != nil && x.FourierNumber != nil {
+		return *x.FourierNumber
+	}
+	return 0
+}
+
+// CrossCheck is one run of the solver on a shape with an exact solution.
+type CrossCheck struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "sphere" or "plane-wall".
+	Shape string `protobuf:"bytes,1,opt,name=shape,proto3" json:"shape,omitempty"`
+	// Radius of the sphere or half-thickness of the wall, m.
+	SizeM     float64 `protobuf:"fixed64,2,opt,name=size_m,json=sizeM,proto3" json:"size_m,omitempty"`
+	CellSizeM float64 `protobuf:"fixed64,3,opt,name=cell_size_m,json=cellSizeM,proto3" json:"cell_size_m,omitempty"`
+	// Cells per characteristic length V/As of the shape.
+	CellsPerLc float64 `protobuf:"fixed64,4,opt,name=cells_per_lc,json=cellsPerLc,proto3" json:"cells_per_lc,omitempty"`
+	// Cells per Lc of the job, for comparison.
+	JobCellsPerLc float64 `protobuf:"fixed64,5,opt,name=job_cells_per_lc,json=jobCellsPerLc,proto3" json:"job_cells_per_lc,omitempty"`
+	PartCells     uint64  `protobuf:"varint,6,opt,name=part_cells,json=partCells,proto3" json:"part_cells,omitempty"`
+	// h * size / k of the shape.
+	BiotNumber float64 `protobuf:"fixed64,7,opt,name=biot_number,json=biotNumber,proto3" json:"biot_number,omitempty"`
+	// Fourier range compared, on the shape's size.
+	FourierFrom float64 `protobuf:"fixed64,8,opt,name=fourier_from,json=fourierFrom,proto3" json:"fourier_from,omitempty"`
+	FourierTo   float64 `protobuf:"fixed64,9,opt,name=fourier_to,json=fourierTo,proto3" json:"fourier_to,omitempty"`
+	// Largest |T - T exact| over the cells and steps compared, as a
+	// fraction of |initial - fluid|.
+	TemperatureError *Check `protobuf:"bytes,10,opt,name=temperature_error,json=temperatureError,proto3" json:"temperature_error,omitempty"`
+	// Largest |Q/Qmax - exact Q/Qmax| over the steps compared.
+	EnergyError *Check  `protobuf:"bytes,11,opt,name=energy_error,json=energyError,proto3" json:"energy_error,omitempty"`
+	Steps       uint32  `protobuf:"varint,12,opt,name=steps,proto3" json:"steps,omitempty"`
+	WallSeconds float64 `protobuf:"fixed64,13,opt,name=wall_seconds,json=wallSeconds,proto3" json:"wall_seconds,omitempty"`
+	// Anything that makes the cross-check differ from the job's resolution.
+	Notes []string `protobuf:"bytes,14,rep,name=notes,proto3" json:"notes,omitempty"`
+	// A thinned history for plotting.
+	Samples       []*CrossCheckSample `protobuf:"bytes,15,rep,name=samples,proto3" json:"samples,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *CrossCheck) Reset() {
+	*x = CrossCheck{}
+	mi := &file_soak_v1_result_proto_msgTypes[10]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CrossCheck) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CrossCheck) ProtoMessage() {}
+
+func (x *CrossCheck) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[10]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CrossCheck.ProtoReflect.Descriptor instead.
+func (*CrossCheck) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{10}
+}
+
+func (x *CrossCheck) GetShape() string {
+	if x != nil {
+		return x.Shape
+	}
+	return ""
+}
+
+func (x *CrossCheck) GetSizeM() float64 {
+	if x != nil {
+		return x.SizeM
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetCellSizeM() float64 {
+	if x != nil {
+		return x.CellSizeM
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetCellsPerLc() float64 {
+	if x != nil {
+		return x.CellsPerLc
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetJobCellsPerLc() float64 {
+	if x != nil {
+		return x.JobCellsPerLc
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetPartCells() uint64 {
+	if x != nil {
+		return x.PartCells
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetBiotNumber() float64 {
+	if x != nil {
+		return x.BiotNumber
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetFourierFrom() float64 {
+	if x != nil {
+		return x.FourierFrom
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetFourierTo() float64 {
+	if x != nil {
+		return x.FourierTo
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetTemperatureError() *Check {
+	if x != nil {
+		return x.TemperatureError
+	}
+	return nil
+}
+
+func (x *CrossCheck) GetEnergyError() *Check {
+	if x != nil {
+		return x.EnergyError
+	}
+	return nil
+}
+
+func (x *CrossCheck) GetSteps() uint32 {
+	if x != nil {
+		return x.Steps
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetWallSeconds() float64 {
+	if x != nil {
+		return x.WallSeconds
+	}
+	return 0
+}
+
+func (x *CrossCheck) GetNotes() []string {
+	if x != nil {
+		return x.Notes
+	}
+	return nil
+}
+
+func (x *CrossCheck) GetSamples() []*CrossCheckSample {
+	if x != nil {
+		return x.Samples
+	}
+	return nil
+}
+
+// CrossCheckSample is the cross-check's state at one step.
+type CrossCheckSample struct {
+	state         protoimpl.MessageState `protogen:"open.v1"`
+	FourierNumber float64                `protobuf:"fixed64,1,opt,name=fourier_number,json=fourierNumber,proto3" json:"fourier_number,omitempty"`
+	// Dimensionless temperature (T - T fluid)/(T initial - T fluid) of the
+	// cell nearest the centre, numerical and exact at that cell's centre.
+	CentreTheta         float64 `protobuf:"fixed64,2,opt,name=centre_theta,json=centreTheta,proto3" json:"centre_theta,omitempty"`
+	CentreThetaExact    float64 `protobuf:"fixed64,3,opt,name=centre_theta_exact,json=centreThetaExact,proto3" json:"centre_theta_exact,omitempty"`
+	EnergyFraction      float64 `protobuf:"fixed64,4,opt,name=energy_fraction,json=energyFraction,proto3" json:"energy_fraction,omitempty"`
+	EnergyFractionExact float64 `protobuf:"fixed64,5,opt,name=energy_fraction_exact,json=energyFractionExact,proto3" json:"energy_fraction_exact,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
+}
+
+func (x *CrossCheckSample) Reset() {
+	*x = CrossCheckSample{}
+	mi := &file_soak_v1_result_proto_msgTypes[11]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CrossCheckSample) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CrossCheckSample) ProtoMessage() {}
+
+func (x *CrossCheckSample) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[11]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CrossCheckSample.ProtoReflect.Descriptor instead.
+func (*CrossCheckSample) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{11}
+}
+
+func (x *CrossCheckSample) GetFourierNumber() float64 {
+	if x != nil {
+		return x.FourierNumber
+	}
+	return 0
+}
+
+func (x *CrossCheckSample) GetCentreTheta() float64 {
+	if x != nil {
+		return x.CentreTheta
+	}
+	return 0
+}
+
+func (x *CrossCheckSample) GetCentreThetaExact() float64 {
+	if x != nil {
+		return x.CentreThetaExact
+	}
+	return 0
+}
+
+func (x *CrossCheckSample) GetEnergyFraction() float64 {
+	if x != nil {
+		return x.EnergyFraction
+	}
+	return 0
+}
+
+func (x *CrossCheckSample) GetEnergyFractionExact() float64 {
+	if x != nil {
+		return x.EnergyFractionExact
+	}
+	return 0
+}
+
 var File_soak_v1_result_proto protoreflect.FileDescriptor
 
 const file_soak_v1_result_proto_rawDesc = "" +
 	"\n" +
-	"\x14soak/v1/result.proto\x12\asoak.v1\"\x85\a\n" +
+	"\x14soak/v1/result.proto\x12\asoak.v1\"\xc0\a\n" +
 	"\aSummary\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x18\n" +
 	"\acaution\x18\x02 \x01(\tR\acaution\x12\x1f\n" +
@@ -566,7 +1359,8 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\x04grid\x18\x14 \x01(\v2\x14.soak.v1.GridSummaryR\x04grid\x12\x16\n" +
 	"\x06scheme\x18\x15 \x01(\tR\x06scheme\x12!\n" +
 	"\fwall_seconds\x18\x16 \x01(\x01R\vwallSeconds\x12\x1c\n" +
-	"\tartifacts\x18\x17 \x03(\tR\tartifacts\"L\n" +
+	"\tartifacts\x18\x17 \x03(\tR\tartifacts\x129\n" +
+	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\"L\n" +
 	"\x0fMilestoneResult\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x1a\n" +
 	"\x06time_s\x18\x02 \x01(\x01H\x00R\x05timeS\x88\x01\x01B\t\n" +
@@ -594,7 +1388,90 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\vcell_size_m\x18\x02 \x01(\x01R\tcellSizeM\x12\x1d\n" +
 	"\n" +
 	"part_cells\x18\x03 \x01(\x04R\tpartCells\x122\n" +
-	"\x15memory_estimate_bytes\x18\x04 \x01(\x04R\x13memoryEstimateBytesB\x1fZ\x1dsoakfarm/proto/soak/v1;soakv1b\x06proto3"
+	"\x15memory_estimate_bytes\x18\x04 \x01(\x04R\x13memoryEstimateBytes\"\xc3\x02\n" +
+	"\fVerification\x121\n" +
+	"\bestimate\x18\x01 \x01(\v2\x15.soak.v1.HandEstimateR\bestimate\x12:\n" +
+	"\n" +
+	"milestones\x18\x02 \x03(\v2\x1a.soak.v1.MilestoneEstimateR\n" +
+	"milestones\x126\n" +
+	"\fcross_checks\x18\x03 \x03(\v2\x13.soak.v1.CrossCheckR\vcrossChecks\x125\n" +
+	"\x0eenergy_balance\x18\x04 \x01(\v2\x0e.soak.v1.CheckR\renergyBalance\x12\x18\n" +
+	"\averdict\x18\x05 \x01(\tR\averdict\x12\x18\n" +
+	"\areasons\x18\x06 \x03(\tR\areasons\x12!\n" +
+	"\fwall_seconds\x18\a \x01(\x01R\vwallSeconds\"K\n" +
+	"\x05Check\x12\x14\n" +
+	"\x05value\x18\x01 \x01(\x01R\x05value\x12\x14\n" +
+	"\x05limit\x18\x02 \x01(\x01R\x05limit\x12\x16\n" +
+	"\x06status\x18\x03 \x01(\tR\x06status\"\x8a\a\n" +
+	"\fHandEstimate\x12\x1b\n" +
+	"\tvolume_m3\x18\x01 \x01(\x01R\bvolumeM3\x12&\n" +
+	"\x0fexposed_area_m2\x18\x02 \x01(\x01R\rexposedAreaM2\x126\n" +
+	"\x17characteristic_length_m\x18\x03 \x01(\x01R\x15characteristicLengthM\x12+\n" +
+	"\x12h_convection_w_m2k\x18\x04 \x01(\x01R\x0fhConvectionWM2k\x12)\n" +
+	"\x11h_radiation_w_m2k\x18\x05 \x01(\x01R\x0ehRadiationWM2k\x12)\n" +
+	"\x11h_effective_w_m2k\x18\x06 \x01(\x01R\x0ehEffectiveWM2k\x12\x17\n" +
+	"\afluid_c\x18\a \x01(\x01R\x06fluidC\x12\x1b\n" +
+	"\tinitial_c\x18\b \x01(\x01R\binitialC\x12&\n" +
+	"\x0fproperty_temp_c\x18\t \x01(\x01R\rpropertyTempC\x12\"\n" +
+	"\rdensity_kg_m3\x18\n" +
+	" \x01(\x01R\vdensityKgM3\x12*\n" +
+	"\x11conductivity_w_mk\x18\v \x01(\x01R\x0fconductivityWMk\x12-\n" +
+	"\x13specific_heat_j_kgk\x18\f \x01(\x01R\x10specificHeatJKgk\x12(\n" +
+	"\x10diffusivity_m2_s\x18\r \x01(\x01R\x0ediffusivityM2S\x12\x1f\n" +
+	"\vbiot_number\x18\x0e \x01(\x01R\n" +
+	"biotNumber\x12%\n" +
+	"\x0elumped_applies\x18\x0f \x01(\bR\rlumpedApplies\x12&\n" +
+	"\x0ftime_constant_s\x18\x10 \x01(\x01R\rtimeConstantS\x12&\n" +
+	"\x0fsphere_radius_m\x18\x11 \x01(\x01R\rsphereRadiusM\x12,\n" +
+	"\x12sphere_biot_number\x18\x12 \x01(\x01R\x10sphereBiotNumber\x121\n" +
+	"\x15wall_half_thickness_m\x18\x13 \x01(\x01R\x12wallHalfThicknessM\x12(\n" +
+	"\x10wall_biot_number\x18\x14 \x01(\x01R\x0ewallBiotNumber\x12:\n" +
+	"\n" +
+	"milestones\x18\x15 \x03(\v2\x1a.soak.v1.MilestoneEstimateR\n" +
+	"milestones\x12\x14\n" +
+	"\x05notes\x18\x16 \x03(\tR\x05notes\"\x91\x01\n" +
+	"\x11MilestoneEstimate\x12\x12\n" +
+	"\x04name\x18\x01 \x01(\tR\x04name\x12'\n" +
+	"\rsolved_time_s\x18\x02 \x01(\x01H\x00R\vsolvedTimeS\x88\x01\x01\x12-\n" +
+	"\aanswers\x18\x03 \x03(\v2\x13.soak.v1.HandAnswerR\aanswersB\x10\n" +
+	"\x0e_solved_time_s\"\xb8\x01\n" +
+	"\n" +
+	"HandAnswer\x12\x16\n" +
+	"\x06method\x18\x01 \x01(\tR\x06method\x12\x1a\n" +
+	"\x06time_s\x18\x02 \x01(\x01H\x00R\x05timeS\x88\x01\x01\x12\x18\n" +
+	"\aapplies\x18\x03 \x01(\bR\aapplies\x12\x12\n" +
+	"\x04note\x18\x04 \x01(\tR\x04note\x12*\n" +
+	"\x0efourier_number\x18\x05 \x01(\x01H\x01R\rfourierNumber\x88\x01\x01B\t\n" +
+	"\a_time_sB\x11\n" +
+	"\x0f_fourier_number\"\x9a\x04\n" +
+	"\n" +
+	"CrossCheck\x12\x14\n" +
+	"\x05shape\x18\x01 \x01(\tR\x05shape\x12\x15\n" +
+	"\x06size_m\x18\x02 \x01(\x01R\x05sizeM\x12\x1e\n" +
+	"\vcell_size_m\x18\x03 \x01(\x01R\tcellSizeM\x12 \n" +
+	"\fcells_per_lc\x18\x04 \x01(\x01R\n" +
+	"cellsPerLc\x12'\n" +
+	"\x10job_cells_per_lc\x18\x05 \x01(\x01R\rjobCellsPerLc\x12\x1d\n" +
+	"\n" +
+	"part_cells\x18\x06 \x01(\x04R\tpartCells\x12\x1f\n" +
+	"\vbiot_number\x18\a \x01(\x01R\n" +
+	"biotNumber\x12!\n" +
+	"\ffourier_from\x18\b \x01(\x01R\vfourierFrom\x12\x1d\n" +
+	"\n" +
+	"fourier_to\x18\t \x01(\x01R\tfourierTo\x12;\n" +
+	"\x11temperature_error\x18\n" +
+	" \x01(\v2\x0e.soak.v1.CheckR\x10temperatureError\x121\n" +
+	"\fenergy_error\x18\v \x01(\v2\x0e.soak.v1.CheckR\venergyError\x12\x14\n" +
+	"\x05steps\x18\f \x01(\rR\x05steps\x12!\n" +
+	"\fwall_seconds\x18\r \x01(\x01R\vwallSeconds\x12\x14\n" +
+	"\x05notes\x18\x0e \x03(\tR\x05notes\x123\n" +
+	"\asamples\x18\x0f \x03(\v2\x19.soak.v1.CrossCheckSampleR\asamples\"\xe7\x01\n" +
+	"\x10CrossCheckSample\x12%\n" +
+	"\x0efourier_number\x18\x01 \x01(\x01R\rfourierNumber\x12!\n" +
+	"\fcentre_theta\x18\x02 \x01(\x01R\vcentreTheta\x12,\n" +
+	"\x12centre_theta_exact\x18\x03 \x01(\x01R\x10centreThetaExact\x12'\n" +
+	"\x0fenergy_fraction\x18\x04 \x01(\x01R\x0eenergyFraction\x122\n" +
+	"\x15energy_fraction_exact\x18\x05 \x01(\x01R\x13energyFractionExactB\x1fZ\x1dsoakfarm/proto/soak/v1;soakv1b\x06proto3"
 
 var (
 	file_soak_v1_result_proto_rawDescOnce sync.Once
@@ -608,24 +1485,41 @@ func file_soak_v1_result_proto_rawDescGZIP() []byte {
 	return file_soak_v1_result_proto_rawDescData
 }
 
-var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 5)
+var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 12)
 var file_soak_v1_result_proto_goTypes = []any{
 	(*Summary)(nil),             // 0: soak.v1.Summary
 	(*MilestoneResult)(nil),     // 1: soak.v1.MilestoneResult
 	(*ProbeReading)(nil),        // 2: soak.v1.ProbeReading
 	(*SurfaceGroupSummary)(nil), // 3: soak.v1.SurfaceGroupSummary
 	(*GridSummary)(nil),         // 4: soak.v1.GridSummary
+	(*Verification)(nil),        // 5: soak.v1.Verification
+	(*Check)(nil),               // 6: soak.v1.Check
+	(*HandEstimate)(nil),        // 7: soak.v1.HandEstimate
+	(*MilestoneEstimate)(nil),   // 8: soak.v1.MilestoneEstimate
+	(*HandAnswer)(nil),          // 9: soak.v1.HandAnswer
+	(*CrossCheck)(nil),          // 10: soak.v1.CrossCheck
+	(*CrossCheckSample)(nil),    // 11: soak.v1.CrossCheckSample
 }
 var file_soak_v1_result_proto_depIdxs = []int32{
-	1, // 0: soak.v1.Summary.milestones:type_name -> soak.v1.MilestoneResult
-	2, // 1: soak.v1.Summary.final_probes:type_name -> soak.v1.ProbeReading
-	3, // 2: soak.v1.Summary.surface_groups:type_name -> soak.v1.SurfaceGroupSummary
-	4, // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
-	4, // [4:4] is the sub-list for method output_type
-	4, // [4:4] is the sub-list for method input_type
-	4, // [4:4] is the sub-list for extension type_name
-	4, // [4:4] is the sub-list for extension extendee
-	0, // [0:4] is the sub-list for field type_name
+	1,  // 0: soak.v1.Summary.milestones:type_name -> soak.v1.MilestoneResult
+	2,  // 1: soak.v1.Summary.final_probes:type_name -> soak.v1.ProbeReading
+	3,  // 2: soak.v1.Summary.surface_groups:type_name -> soak.v1.SurfaceGroupSummary
+	4,  // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
+	5,  // 4: soak.v1.Summary.verification:type_name -> soak.v1.Verification
+	7,  // 5: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
+	8,  // 6: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
+	10, // 7: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
+	6,  // 8: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
+	8,  // 9: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
+	9,  // 10: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
+	6,  // 11: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
+	6,  // 12: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
+	11, // 13: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
+	14, // [14:14] is the sub-list for method output_type
+	14, // [14:14] is the sub-list for method input_type
+	14, // [14:14] is the sub-list for extension type_name
+	14, // [14:14] is the sub-list for extension extendee
+	0,  // [0:14] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_result_proto_init() }
@@ -635,13 +1529,15 @@ func file_soak_v1_result_proto_init() {
 	}
 	file_soak_v1_result_proto_msgTypes[1].OneofWrappers = []any{}
 	file_soak_v1_result_proto_msgTypes[3].OneofWrappers = []any{}
+	file_soak_v1_result_proto_msgTypes[8].OneofWrappers = []any{}
+	file_soak_v1_result_proto_msgTypes[9].OneofWrappers = []any{}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_soak_v1_result_proto_rawDesc), len(file_soak_v1_result_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   5,
+			NumMessages:   12,
 			NumExtensions: 0,
 			NumServices:   0,
 		},

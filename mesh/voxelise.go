@@ -109,17 +109,7 @@ func checkInputs(s Solid, cellSize float64, selectors []Selector) error {
 	if err := checkLength("cell size", cellSize); err != nil {
 		errs = append(errs, err)
 	}
-	if v, ok := s.(interface{ Validate() error }); ok {
-		if err := v.Validate(); err != nil {
-			errs = append(errs, err)
-		}
-	}
-	lo, hi := s.Bounds()
-	for d := range lo {
-		if ext := hi[d] - lo[d]; !(ext > 0) || math.IsInf(ext, 0) {
-			errs = append(errs, fmt.Errorf("solid bounds: extent along %s must be a positive length in m, got %g", axisNames[d], ext))
-		}
-	}
+	errs = append(errs, checkSolid(s)...)
 	if len(errs) == 0 {
 		// A small tolerance lets CellSizeFor(s, MinCellsAcross) pass despite rounding.
 		if across := minExtent(s) / cellSize; across < MinCellsAcross*(1-1e-9) {
@@ -133,6 +123,25 @@ func checkInputs(s Solid, cellSize float64, selectors []Selector) error {
 		errs = append(errs, sel.validate(fmt.Sprintf("selectors[%d]", i))...)
 	}
 	return errors.Join(errs...)
+}
+
+// checkSolid reports a solid that fails its own validation or whose
+// bounding box is empty or unbounded. Bounds is only asked of a solid that
+// validated, since a primitive with a bad field may not be able to answer.
+func checkSolid(s Solid) []error {
+	if v, ok := s.(interface{ Validate() error }); ok {
+		if err := v.Validate(); err != nil {
+			return []error{err}
+		}
+	}
+	var errs []error
+	lo, hi := s.Bounds()
+	for d := range lo {
+		if ext := hi[d] - lo[d]; !(ext > 0) || math.IsInf(ext, 0) {
+			errs = append(errs, fmt.Errorf("solid bounds: extent along %s must be a positive length in m, got %g", axisNames[d], ext))
+		}
+	}
+	return errs
 }
 
 // newGrid sizes the grid box and centres it on s's bounding box.
@@ -213,24 +222,24 @@ func (v *voxeliser) fillRegion(_, k0, k1 int) {
 // their normal, corrected (not yet rescaled) area and group.
 func (v *voxeliser) findFaces(k0, k1 int) []BoundaryFace {
 	g := v.grid
+	stride := [3]int{1, g.N[0], g.N[0] * g.N[1]}
 	var faces []BoundaryFace
 	for k := k0; k < k1; k++ {
 		for j := 0; j < g.N[1]; j++ {
+			row := g.Index(0, j, k)
 			for i := 0; i < g.N[0]; i++ {
-				c := g.Index(i, j, k)
+				c := row + i
 				if g.Region[c] == 0 {
 					continue
 				}
 				cell := [3]int{i, j, k}
 				for dir := MinusX; dir <= PlusZ; dir++ {
-					axis, side := dir/2, dir%2
-					next := cell
-					next[axis] += 2*side - 1
-					if g.Inside(next[0], next[1], next[2]) {
+					axis, step := dir/2, 2*(dir%2)-1
+					if at := cell[axis] + step; at >= 0 && at < g.N[axis] && g.Region[c+step*stride[axis]] != 0 {
 						continue
 					}
 					p := [3]float64{v.centre[0][i], v.centre[1][j], v.centre[2][k]}
-					p[axis] = v.face[axis][cell[axis]+side]
+					p[axis] = v.face[axis][cell[axis]+dir%2]
 					n := v.normalAt(p, dir)
 					faces = append(faces, BoundaryFace{
 						Cell:   int32(c),

@@ -1,0 +1,44 @@
+package jobspec_test
+
+import (
+	"errors"
+	"testing"
+
+	"soakfarm/jobspec"
+)
+
+// FuzzParse feeds arbitrary bytes through Parse and Validate in every
+// format: neither may panic, errors must carry their problems, and a spec
+// that validates must survive a round trip through JSON. The seed corpus in
+// testdata/fuzz/FuzzParse holds the shared testdata specs.
+func FuzzParse(f *testing.F) {
+	f.Fuzz(func(t *testing.T, data []byte) {
+		for _, format := range []string{"", "yaml", "json"} {
+			spec, err := jobspec.Parse(data, format)
+			if err != nil {
+				if spec != nil {
+					t.Fatalf("format %q: Parse returned a spec with error %v", format, err)
+				}
+				checkProblems(t, err)
+				continue
+			}
+			err = jobspec.Validate(spec, jobspec.DefaultLimits())
+			if err != nil {
+				checkProblems(t, err)
+				continue
+			}
+			assertRoundTrip(t, spec)
+		}
+	})
+}
+
+func checkProblems(t *testing.T, err error) {
+	t.Helper()
+	var verr *jobspec.ValidationError
+	if errors.As(err, &verr) && len(verr.Problems) == 0 {
+		t.Fatal("ValidationError without problems")
+	}
+	if err.Error() == "" {
+		t.Fatal("empty error message")
+	}
+}

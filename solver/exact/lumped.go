@@ -61,11 +61,11 @@ func LumpedRadiationTemperature(rho, cp, volume, area, emissivity, tSur, tInitia
 	// body would have needed more than t to get there: that brackets the
 	// answer. If even the last float64 before tSur is reached sooner, the
 	// answer is tSur to double precision.
-	near, far := tInitial, tInitial
-	for far != tSur {
-		near, far = far, tSur+(far-tSur)/2
-		if far == near {
-			break
+	near := tInitial
+	for {
+		far := tSur + (near-tSur)/2
+		if far == near || far == tSur {
+			return tSur, nil
 		}
 		if behind(far) >= 0 {
 			temp, err := findRoot(behind, near, far)
@@ -74,8 +74,8 @@ func LumpedRadiationTemperature(rho, cp, volume, area, emissivity, tSur, tInitia
 			}
 			return temp, nil
 		}
+		near = far
 	}
-	return tSur, nil
 }
 
 func checkLumpedRadiation(rho, cp, volume, area, emissivity, tSur, tInitial float64) *inputChecks {

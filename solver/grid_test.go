@@ -99,12 +99,42 @@ func testGrid(tp testPart) *mesh.Grid {
 func sphereOctant(cells int, radius float64) testPart {
 	return testPart{
 		n: [3]int{cells, cells, cells}, cell: radius / float64(cells),
-		inside: func(p [3]float64) bool { return norm(p) < radius },
-		normal: func(p [3]float64, _ int) [3]float64 { return scale(p, 1/norm(p)) },
-		insulated: func(_ [3]float64, dir int) bool {
-			return dir == mesh.MinusX || dir == mesh.MinusY || dir == mesh.MinusZ
-		},
+		inside:      func(p [3]float64) bool { return norm(p) < radius },
+		normal:      func(p [3]float64, _ int) [3]float64 { return scale(p, 1/norm(p)) },
+		insulated:   onSymmetryPlanes,
 		exposedArea: math.Pi * radius * radius / 2,
+	}
+}
+
+// onSymmetryPlanes marks the faces on the planes x = 0, y = 0 and z = 0
+// of an octant model with its corner at the origin.
+func onSymmetryPlanes(_ [3]float64, dir int) bool {
+	return dir == mesh.MinusX || dir == mesh.MinusY || dir == mesh.MinusZ
+}
+
+// blockOctant is one eighth of a block with half-sizes cells[i]·cell,
+// centred on the grid origin.
+func blockOctant(cells [3]int, cell float64) testPart {
+	return testPart{n: cells, cell: cell, inside: func([3]float64) bool { return true }, insulated: onSymmetryPlanes}
+}
+
+// shortCylinderOctant is one eighth of a cylinder of radius `radius` and
+// half-length halfLength (a whole number of cells of radius/cells), axis
+// along z, centred on the grid origin.
+func shortCylinderOctant(cells int, radius, halfLength float64) testPart {
+	h := radius / float64(cells)
+	return testPart{
+		n: [3]int{cells, cells, int(math.Round(halfLength / h))}, cell: h,
+		inside: func(p [3]float64) bool { return math.Hypot(p[0], p[1]) < radius },
+		normal: func(p [3]float64, dir int) [3]float64 {
+			if dir == mesh.PlusZ {
+				return axisNormal(dir)
+			}
+			r := math.Hypot(p[0], p[1])
+			return [3]float64{p[0] / r, p[1] / r, 0}
+		},
+		insulated:   onSymmetryPlanes,
+		exposedArea: math.Pi * radius * (radius/4 + halfLength/2),
 	}
 }
 
@@ -133,34 +163,6 @@ func wallColumn(across int, half float64) testPart {
 		n: [3]int{across, 1, 1}, cell: h, origin: [3]float64{-half, 0, 0},
 		inside:    func([3]float64) bool { return true },
 		insulated: func(_ [3]float64, dir int) bool { return dir >= mesh.MinusY },
-	}
-}
-
-// block is a whole box of cells, every face exposed, centred on the origin.
-func block(n [3]int, cell float64) testPart {
-	return testPart{
-		n: n, cell: cell,
-		origin: [3]float64{-0.5 * cell * float64(n[0]), -0.5 * cell * float64(n[1]), -0.5 * cell * float64(n[2])},
-		inside: func([3]float64) bool { return true },
-	}
-}
-
-// shortCylinder is a whole cylinder of radius R and height 2·halfHeight,
-// axis along z, centred on the origin, `across` cells over the diameter.
-func shortCylinder(across int, radius, halfHeight float64) testPart {
-	h := 2 * radius / float64(across)
-	nz := int(math.Round(2 * halfHeight / h))
-	return testPart{
-		n: [3]int{across, across, nz}, cell: h, origin: [3]float64{-radius, -radius, -halfHeight},
-		inside: func(p [3]float64) bool { return math.Hypot(p[0], p[1]) < radius },
-		normal: func(p [3]float64, dir int) [3]float64 {
-			if dir == mesh.MinusZ || dir == mesh.PlusZ {
-				return axisNormal(dir)
-			}
-			r := math.Hypot(p[0], p[1])
-			return [3]float64{p[0] / r, p[1] / r, 0}
-		},
-		exposedArea: 2 * math.Pi * radius * (radius + 2*halfHeight),
 	}
 }
 

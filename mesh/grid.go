@@ -64,7 +64,8 @@ type Group struct {
 	// when false the solid could not say and TrueArea is ModelArea.
 	TrueAreaExact bool
 	// Rescale is the factor applied to the faces' corrected areas so that
-	// ModelArea equals the exact TrueArea (1 when TrueArea is not exact).
+	// ModelArea equals the exact TrueArea (1 when TrueArea is not exact or
+	// the group has no faces).
 	// It stays within a few per cent of 1 unless the cells are too coarse
 	// for the group's surface.
 	Rescale float64

@@ -73,7 +73,14 @@ func EstimateBytes(n [3]int) int64 {
 // to the "insulated" group, always last. Each face carries the true normal
 // there and the corrected area (CorrectedFaceArea); where the group's true
 // area is known exactly, the group's face areas are then scaled so that
-// their sum equals it (Group.Rescale).
+// their sum equals it (Group.Rescale). Faces are listed in cell order and,
+// within a cell, in direction order.
+//
+// Errors name the bad argument: a solid that fails its Validate method or
+// has an empty bounding box, a cell size that is not a positive length or
+// leaves fewer than MinCellsAcross cells across the part, a selector that
+// selects nothing or names an unknown direction, a selector whose surface
+// gets no face at this cell size, or ctx's error (wrapped) when cancelled.
 func Voxelise(ctx context.Context, s Solid, cellSize float64, selectors []Selector) (*Grid, error) {
 	if err := checkInputs(s, cellSize, selectors); err != nil {
 		return nil, err
@@ -83,17 +90,17 @@ func Voxelise(ctx context.Context, s Solid, cellSize float64, selectors []Select
 		return nil, fmt.Errorf("cell size %g m gives %d×%d×%d = %d cells, more than the %d a grid can index", cellSize, g.N[0], g.N[1], g.N[2], total, math.MaxInt32)
 	}
 	v := newVoxeliser(s, g, selectors)
-	slabs := splitSlabs(g.N[2], runtime.GOMAXPROCS(0))
 	g.Region = make([]uint8, g.CellCount())
-	if err := runSlabs(ctx, slabs, v.fillRegion); err != nil {
+	if err := forEachPlane(ctx, g.N[2], v.fillRegion); err != nil {
 		return nil, err
 	}
-	faces := make([][]BoundaryFace, len(slabs))
-	err := runSlabs(ctx, slabs, func(slab, k0, k1 int) { faces[slab] = v.findFaces(k0, k1) })
-	if err != nil {
+	// The face pass reads neighbouring planes, so it starts only once every
+	// plane's region is filled.
+	faces := make([][]BoundaryFace, g.N[2])
+	if err := forEachPlane(ctx, g.N[2], func(k int) { faces[k] = v.findFaces(k) }); err != nil {
 		return nil, err
 	}
-	g.Faces = slices.Concat(faces...) // slab order keeps the faces in cell order
+	g.Faces = slices.Concat(faces...) // plane order keeps the faces in cell order
 	if err := v.makeGroups(); err != nil {
 		return nil, err
 	}
@@ -157,7 +164,7 @@ func newGrid(s Solid, h float64) *Grid {
 	return g
 }
 
-// voxeliser holds what the slab workers share: read-only inputs and
+// voxeliser holds what the plane workers share: read-only inputs and
 // per-axis coordinates.
 type voxeliser struct {
 	solid     Solid
@@ -202,53 +209,49 @@ func newVoxeliser(s Solid, g *Grid, selectors []Selector) *voxeliser {
 	return v
 }
 
-// fillRegion marks the part cells of planes k0 … k1−1.
-func (v *voxeliser) fillRegion(_, k0, k1 int) {
+// fillRegion marks the part cells of plane k.
+func (v *voxeliser) fillRegion(k int) {
 	g := v.grid
-	for k := k0; k < k1; k++ {
-		for j := 0; j < g.N[1]; j++ {
-			c := g.Index(0, j, k)
-			for i := 0; i < g.N[0]; i++ {
-				if v.solid.Contains([3]float64{v.centre[0][i], v.centre[1][j], v.centre[2][k]}) {
-					g.Region[c+i] = 1
-				}
+	for j := 0; j < g.N[1]; j++ {
+		row := g.Index(0, j, k)
+		for i := 0; i < g.N[0]; i++ {
+			if v.solid.Contains([3]float64{v.centre[0][i], v.centre[1][j], v.centre[2][k]}) {
+				g.Region[row+i] = 1
 			}
 		}
 	}
 }
 
-// findFaces returns the boundary faces of the part cells in planes
-// k0 … k1−1, in cell order and, within a cell, in direction order, with
-// their normal, corrected (not yet rescaled) area and group.
-func (v *voxeliser) findFaces(k0, k1 int) []BoundaryFace {
+// findFaces returns the boundary faces of the part cells in plane k, in
+// cell order and, within a cell, in direction order, with their normal,
+// corrected (not yet rescaled) area and group.
+func (v *voxeliser) findFaces(k int) []BoundaryFace {
 	g := v.grid
 	stride := [3]int{1, g.N[0], g.N[0] * g.N[1]}
 	var faces []BoundaryFace
-	for k := k0; k < k1; k++ {
-		for j := 0; j < g.N[1]; j++ {
-			row := g.Index(0, j, k)
-			for i := 0; i < g.N[0]; i++ {
-				c := row + i
-				if g.Region[c] == 0 {
+	for j := 0; j < g.N[1]; j++ {
+		row := g.Index(0, j, k)
+		for i := 0; i < g.N[0]; i++ {
+			c := row + i
+			if g.Region[c] == 0 {
+				continue
+			}
+			cell := [3]int{i, j, k}
+			for dir := MinusX; dir <= PlusZ; dir++ {
+				axis, step := dir/2, 2*(dir%2)-1
+				if at := cell[axis] + step; at >= 0 && at < g.N[axis] && g.Region[c+step*stride[axis]] != 0 {
 					continue
 				}
-				cell := [3]int{i, j, k}
-				for dir := MinusX; dir <= PlusZ; dir++ {
-					axis, step := dir/2, 2*(dir%2)-1
-					if at := cell[axis] + step; at >= 0 && at < g.N[axis] && g.Region[c+step*stride[axis]] != 0 {
-						continue
-					}
-					p := [3]float64{v.centre[0][i], v.centre[1][j], v.centre[2][k]}
-					p[axis] = v.face[axis][cell[axis]+dir%2]
-					n := v.normalAt(p, dir)
-					faces = append(faces, BoundaryFace{
-						Cell:   int32(c),
-						Dir:    uint8(dir),
-						Group:  uint16(v.groupOf[classifyNormal(n)]),
-						Area:   CorrectedFaceArea(g.CellSize, n),
-						Normal: n,
-					})
-				}
+				p := [3]float64{v.centre[0][i], v.centre[1][j], v.centre[2][k]}
+				p[axis] = v.face[axis][cell[axis]+dir%2]
+				n := v.normalAt(p, dir)
+				faces = append(faces, BoundaryFace{
+					Cell:   int32(c),
+					Dir:    uint8(dir),
+					Group:  uint16(v.groupOf[classifyNormal(n)]),
+					Area:   CorrectedFaceArea(g.CellSize, n),
+					Normal: n,
+				})
 			}
 		}
 	}
@@ -302,31 +305,22 @@ func (v *voxeliser) makeGroups() error {
 	return nil
 }
 
-// splitSlabs cuts nz planes into contiguous slabs, several per worker so
-// that uneven slabs (a sphere's middle holds more part cells than its poles)
-// even out and cancellation is noticed soon.
-func splitSlabs(nz, workers int) [][2]int {
-	count := min(nz, 8*workers)
-	slabs := make([][2]int, count)
-	for s := range slabs {
-		slabs[s] = [2]int{s * nz / count, (s + 1) * nz / count}
-	}
-	return slabs
-}
-
-// runSlabs calls work for every slab on GOMAXPROCS goroutines and returns
-// ctx's error if it was cancelled meanwhile.
-func runSlabs(ctx context.Context, slabs [][2]int, work func(slab, k0, k1 int)) error {
+// forEachPlane calls work for every z-plane 0 … nz−1 on GOMAXPROCS
+// goroutines, handing out one plane at a time so that uneven planes (a
+// sphere's middle holds more part cells than its poles) balance and
+// cancellation is noticed within a plane. It returns ctx's error if ctx was
+// cancelled meanwhile.
+func forEachPlane(ctx context.Context, nz int, work func(k int)) error {
 	var next atomic.Int64
 	var wg sync.WaitGroup
-	for range min(runtime.GOMAXPROCS(0), len(slabs)) {
+	for range min(runtime.GOMAXPROCS(0), nz) {
 		wg.Go(func() {
 			for ctx.Err() == nil {
-				s := int(next.Add(1)) - 1
-				if s >= len(slabs) {
+				k := int(next.Add(1)) - 1
+				if k >= nz {
 					return
 				}
-				work(s, slabs[s][0], slabs[s][1])
+				work(k)
 			}
 		})
 	}

@@ -295,6 +295,23 @@ func TestBoundaryFacesAreExactlyTheExposedOnes(t *testing.T) {
 	}
 }
 
+// A face stands for surface facing its own side, so its normal must have a
+// positive component along the face direction; for a solid without
+// FaceNormal (the opaque box) this needs the fallback near edges, where the
+// nearest surface is often a neighbouring box face.
+func TestFaceNormalsFaceTheirSide(t *testing.T) {
+	t.Parallel()
+	box := Box{Size: [3]float64{0.1, 0.13, 0.08}}
+	for _, s := range []Solid{Sphere{Diameter: 0.1}, Cylinder{Diameter: 0.05, Length: 0.08, Axis: 1}, box, opaqueSolid{box}} {
+		g := voxelise(t, s, 20, []Selector{{All: true}})
+		for _, f := range g.Faces {
+			if c := dot(f.Normal, axisVector(int(f.Dir))); !(c > 0) || !near(norm(f.Normal), 1, 1e-12) {
+				t.Fatalf("%T: face %+v: normal is not a unit vector facing its side", s, f)
+			}
+		}
+	}
+}
+
 func TestSphereGridIsSymmetric(t *testing.T) {
 	t.Parallel()
 	for _, n := range []int{17, 24} {
@@ -418,6 +435,29 @@ func TestEstimateBytesCoversGrid(t *testing.T) {
 		if EstimateBytes(more) <= EstimateBytes(base) {
 			t.Errorf("estimate for %v is not above that for %v", more, base)
 		}
+	}
+}
+
+// BenchmarkSphereContains128Reference is the bare cost of testing every
+// cell centre of a 128³ box against a sphere on one goroutine, the
+// reference that BenchmarkVoxeliseSphere128 is read against.
+func BenchmarkSphereContains128Reference(b *testing.B) {
+	s := Sphere{Diameter: 0.2}
+	h := CellSizeFor(s, 128)
+	inside := 0
+	for b.Loop() {
+		for k := range 128 {
+			for j := range 128 {
+				for i := range 128 {
+					if s.Contains([3]float64{h * (float64(i) - 63.5), h * (float64(j) - 63.5), h * (float64(k) - 63.5)}) {
+						inside++
+					}
+				}
+			}
+		}
+	}
+	if inside == 0 {
+		b.Fatal("no cell centre inside the sphere")
 	}
 }
 

@@ -45,6 +45,9 @@ type bvhNode struct {
 	lo, hi     vec
 	centre     vec     // area-weighted centroid of the node's triangles
 	areaNormal vec     // sum of the triangles' area vectors
+	// moment is Σ area vector ⊗ (triangle centroid − centre): the
+	// first-order term of the far-field expansion.
+	moment [3]vec
 	radius     float64 // largest distance from centre to a corner
 	first      int32
 	count      int32 // 0 for an inner node
@@ -126,7 +129,7 @@ func (b *Body) WindingNumber(p [3]float64) float64 {
 		d := sub(nd.centre, p)
 		d2 := dot(d, d)
 		if d2 > farRatio*farRatio*nd.radius*nd.radius {
-			sum += dot(nd.areaNormal, d) / (d2 * math.Sqrt(d2))
+			sum += farField(nd, d, d2)
 			continue
 		}
 		if nd.count == 0 {
@@ -138,6 +141,19 @@ func (b *Body) WindingNumber(p [3]float64) float64 {
 		}
 	}
 	return sum / (4 * math.Pi)
+}
+
+// farField is the solid angle a cluster subtends from a point at offset
+// −d from the cluster's centre, to first order in the cluster's size: the
+// kernel n·(x−p)/|x−p|³ expanded about the centre, whose Jacobian is
+// I/r³ − 3 r⊗r/r⁵ (Barill et al. 2018, §3.2).
+func farField(nd *bvhNode, d vec, d2 float64) float64 {
+	r3 := d2 * math.Sqrt(d2)
+	dipole := dot(nd.areaNormal, d) / r3
+	m := &nd.moment
+	trace := m[0][0] + m[1][1] + m[2][2]
+	dMd := dot(d, vec{dot(m[0], d), dot(m[1], d), dot(m[2], d)})
+	return dipole + trace/r3 - 3*dMd/(r3*d2)
 }
 
 // solidAngle is the signed solid angle of triangle t seen from p, by
@@ -332,6 +348,10 @@ func (b *Body) summarise(i int32) {
 		nd.centre = scale(weighted, 1/area)
 	}
 	for _, t := range tris {
+		av, off := areaVector(t.v), sub(centroid(t.v), nd.centre)
+		for j := range 3 {
+			nd.moment[j] = add(nd.moment[j], scale(off, av[j]))
+		}
 		for _, v := range t.v {
 			nd.radius = max(nd.radius, norm(sub(v, nd.centre)))
 		}

@@ -85,9 +85,9 @@ func Voxelise(ctx context.Context, s Solid, cellSize float64, selectors []Select
 	if err := checkInputs(s, cellSize, selectors); err != nil {
 		return nil, err
 	}
-	g := newGrid(s, cellSize)
-	if total := int64(g.N[0]) * int64(g.N[1]) * int64(g.N[2]); total > math.MaxInt32 {
-		return nil, fmt.Errorf("cell size %g m gives %d×%d×%d = %d cells, more than the %d a grid can index", cellSize, g.N[0], g.N[1], g.N[2], total, math.MaxInt32)
+	g, err := newGrid(s, cellSize)
+	if err != nil {
+		return nil, err
 	}
 	v := newVoxeliser(s, g, selectors)
 	g.Region = make([]uint8, g.CellCount())
@@ -151,17 +151,33 @@ func checkSolid(s Solid) []error {
 	return errs
 }
 
-// newGrid sizes the grid box and centres it on s's bounding box.
-func newGrid(s Solid, h float64) *Grid {
+// newGrid sizes the grid box and centres it on s's bounding box. It
+// refuses a box with more cells than BoundaryFace.Cell can index.
+func newGrid(s Solid, h float64) (*Grid, error) {
 	lo, hi := s.Bounds()
-	g := &Grid{CellSize: h}
-	for d := range g.N {
+	mid := boundsCentre(s)
+	var counts [3]float64
+	for d := range counts {
 		// The tolerance keeps an extent that is a whole number of cells
 		// from gaining an extra cell through rounding.
-		g.N[d] = max(1, int(math.Ceil((hi[d]-lo[d])/h-1e-9)))
-		g.Origin[d] = (lo[d]+hi[d])/2 - h*float64(g.N[d])/2
+		counts[d] = max(1, math.Ceil((hi[d]-lo[d])/h-1e-9))
 	}
-	return g
+	if total := counts[0] * counts[1] * counts[2]; total > math.MaxInt32 {
+		return nil, fmt.Errorf("cell size %g m gives %g×%g×%g = %.4g cells, more than the %d a grid can index", h, counts[0], counts[1], counts[2], total, math.MaxInt32)
+	}
+	g := &Grid{CellSize: h}
+	for d := range g.N {
+		g.N[d] = int(counts[d])
+		g.Origin[d] = mid[d] - h*counts[d]/2
+	}
+	return g, nil
+}
+
+// boundsCentre returns the centre of s's bounding box, where the grid's
+// centre goes.
+func boundsCentre(s Solid) [3]float64 {
+	lo, hi := s.Bounds()
+	return scale(add(lo, hi), 0.5)
 }
 
 // voxeliser holds what the plane workers share: read-only inputs and
@@ -191,18 +207,18 @@ func newVoxeliser(s Solid, g *Grid, selectors []Selector) *voxeliser {
 			return n
 		}
 	}
-	lo, hi := s.Bounds()
+	mid := boundsCentre(s)
 	for d := range v.centre {
-		n, mid := g.N[d], (lo[d]+hi[d])/2
+		n := g.N[d]
 		v.centre[d] = make([]float64, n)
 		v.face[d] = make([]float64, n+1)
 		// Offsets from the middle in half-integer cell counts are exact, so
 		// mirror-image cells get exactly mirrored coordinates (a sphere's
 		// grid stays symmetric, which Origin + h·(i+½) would not guarantee).
 		for i := range v.face[d] {
-			v.face[d][i] = mid + g.CellSize*(float64(i)-float64(n)/2)
+			v.face[d][i] = mid[d] + g.CellSize*(float64(i)-float64(n)/2)
 			if i < n {
-				v.centre[d][i] = mid + g.CellSize*(float64(i)+0.5-float64(n)/2)
+				v.centre[d][i] = mid[d] + g.CellSize*(float64(i)+0.5-float64(n)/2)
 			}
 		}
 	}

@@ -370,6 +370,7 @@ func TestVoxeliseRejectsBadInputs(t *testing.T) {
 		{"zero cell size", sphere, 0, nil, []string{"cell size", "got 0"}},
 		{"negative cell size", sphere, -0.01, nil, []string{"cell size", "got -0.01"}},
 		{"NaN cell size", sphere, math.NaN(), nil, []string{"cell size", "got NaN"}},
+		{"too many cells", sphere, 1e-5, nil, []string{"cell size 1e-05 m", "more than the 2147483647"}},
 		{"too few cells", sphere, CellSizeFor(sphere, 3), nil, []string{"3 cells across", "need at least 4"}},
 		{"empty selector", sphere, 0.01, []Selector{{All: true}, {}}, []string{"selectors[1]: selects no surface"}},
 		{"unknown direction", sphere, 0.01, []Selector{{Facing: []int{PlusX, 6}}}, []string{"selectors[0].Facing[1]", "got 6"}},

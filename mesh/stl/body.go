@@ -12,7 +12,7 @@ const leafSize = 8
 // point before its triangles are lumped into one dipole; 2 is the value
 // Barill et al. (2018, "Fast winding numbers for soups and clouds") use
 // for a first-order expansion.
-const farRatio = 2
+const farRatio = 3
 
 // FaceGroup is the surface of one named solid block of the file.
 type FaceGroup struct {

@@ -1,6 +1,7 @@
 package jobspec_test
 
 import (
+	"encoding/json"
 	"errors"
 	"testing"
 
@@ -15,6 +16,9 @@ func FuzzParse(f *testing.F) {
 	f.Fuzz(func(t *testing.T, data []byte) {
 		for _, format := range []string{"", "yaml", "json"} {
 			spec, err := jobspec.Parse(data, format)
+			if err == nil && format == "json" {
+				sameNameAsEncodingJSON(t, data, spec.GetName())
+			}
 			if err != nil {
 				if spec != nil {
 					t.Fatalf("format %q: Parse returned a spec with error %v", format, err)
@@ -30,6 +34,21 @@ func FuzzParse(f *testing.F) {
 			assertRoundTrip(t, spec)
 		}
 	})
+}
+
+// sameNameAsEncodingJSON checks the name read from JSON against the
+// standard library's decoder, which JSON's escapes are the harder part of.
+func sameNameAsEncodingJSON(t *testing.T, data []byte, name string) {
+	t.Helper()
+	var want struct {
+		Name string `json:"name"`
+	}
+	if err := json.Unmarshal(data, &want); err != nil {
+		t.Fatalf("Parse read JSON that encoding/json refuses: %v", err)
+	}
+	if name != want.Name {
+		t.Fatalf("name %q, encoding/json reads %q", name, want.Name)
+	}
 }
 
 func checkProblems(t *testing.T, err error) {

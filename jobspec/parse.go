@@ -16,6 +16,9 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf16"
+	"unicode/utf8"
 
 	"go.yaml.in/yaml/v3"
 	"google.golang.org/protobuf/encoding/protojson"
@@ -88,10 +91,7 @@ func Parse(data []byte, format string) (*soakv1.JobSpec, error) {
 		if err := checkJSONSyntax(data); err != nil {
 			return nil, err
 		}
-		// Valid JSON is YAML once its tabs are spaces (YAML refuses tabs
-		// as indentation); JSON strings cannot hold a raw tab, so every
-		// tab is whitespace between tokens.
-		data = bytes.ReplaceAll(data, []byte{'\t'}, []byte{' '})
+		data = jsonAsYAML(data)
 	default:
 		return nil, fmt.Errorf("unknown spec format %q: want \"yaml\", \"json\" or \"\" to guess", format)
 	}
@@ -142,6 +142,83 @@ func checkJSONSyntax(data []byte) error {
 	return nil
 }
 
+// jsonAsYAML rewrites valid JSON into YAML that reads the same, keeping
+// every token on its line so that problems keep their line numbers. Tabs
+// between tokens become spaces (YAML refuses tabs as indentation); in
+// strings, the escapes YAML lacks are rewritten: "\/" as "/", a UTF-16
+// surrogate pair as one "\U" escape, and a lone surrogate as U+FFFD, which
+// is what JSON decoders make of it; characters YAML refuses raw (DEL, C1
+// controls, invalid UTF-8, again as U+FFFD) become "\U" escapes.
+func jsonAsYAML(data []byte) []byte {
+	out := make([]byte, 0, len(data))
+	inString := false
+	for i := 0; i < len(data); i++ {
+		b := data[i]
+		switch {
+		case !inString && b == '\t':
+			out = append(out, ' ')
+		case !inString:
+			inString = b == '"'
+			out = append(out, b)
+		case b == '"':
+			inString = false
+			out = append(out, b)
+		case b >= 0x7f: // DEL and all non-ASCII
+			r, size := utf8.DecodeRune(data[i:])
+			if yamlPrintable(r) && (r != utf8.RuneError || size > 1) {
+				out = append(out, data[i:i+size]...)
+			} else {
+				out = fmt.Appendf(out, "\\U%08X", r)
+			}
+			i += size - 1
+		case b != '\\':
+			out = append(out, b)
+		case data[i+1] == '/': // valid JSON: a backslash is never last
+			out = append(out, '/')
+			i++
+		case data[i+1] == 'u':
+			r, n := jsonUnicodeEscape(data[i:])
+			if utf16.IsSurrogate(r) {
+				r = unicode.ReplacementChar
+			}
+			out = fmt.Appendf(out, "\\U%08X", r)
+			i += n - 1
+		default:
+			out = append(out, b, data[i+1])
+			i++
+		}
+	}
+	return out
+}
+
+// yamlPrintable reports whether YAML keeps r as it is in a quoted string:
+// printable (YAML 1.2, section 5.1) and not one of the line breaks YAML
+// folds into a space (NEL, LS, PS).
+func yamlPrintable(r rune) bool {
+	switch r {
+	case 0x85, 0x2028, 0x2029:
+		return false
+	}
+	return r < 0x7f || (r >= 0xa0 && r <= 0xd7ff) || (r >= 0xe000 && r <= 0xfffd) || r >= 0x10000
+}
+
+// jsonUnicodeEscape decodes the \uXXXX escape at the start of s, joining
+// it with a following low surrogate escape, and returns the rune and the
+// number of bytes used. Valid JSON guarantees the four hex digits.
+func jsonUnicodeEscape(s []byte) (rune, int) {
+	hex := func(s []byte) rune {
+		v, _ := strconv.ParseUint(string(s[2:6]), 16, 32)
+		return rune(v)
+	}
+	r := hex(s)
+	if len(s) >= 12 && s[6] == '\\' && s[7] == 'u' {
+		if joined := utf16.DecodeRune(r, hex(s[6:])); joined != unicode.ReplacementChar {
+			return joined, 12
+		}
+	}
+	return r, 6
+}
+
 // walker checks a YAML tree against the schema and builds the generic value
 // protojson reads, collecting a Problem for every unknown key and wrong type.
 type walker struct {
@@ -181,6 +258,10 @@ func (w *walker) message(n *yaml.Node, md protoreflect.MessageDescriptor, path s
 		}
 		key := keyNode.Value
 		kpath := join(path, key)
+		if keyNode.ShortTag() == "!!merge" {
+			w.add(keyNode, kpath, "", "merge keys are not supported; write the keys out, or alias a whole value")
+			continue
+		}
 		if first, dup := seen[key]; dup {
 			w.add(keyNode, kpath, "", fmt.Sprintf("key given twice (first on line %d)", first))
 			continue

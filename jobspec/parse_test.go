@@ -2,6 +2,7 @@ package jobspec_test
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -191,6 +192,8 @@ func TestParseProblems(t *testing.T) {
 			[]string{"line 2: a key must be plain text, got a list"}},
 		{"custom tag", base + "end_s: !minutes 10\n", "",
 			[]string{"line 2: end_s: must be a number, got 10"}},
+		{"merge key", base + "material:\n  <<: {density_kg_m3: 1}\n", "",
+			[]string{"line 3: material.<<: merge keys are not supported; write the keys out, or alias a whole value"}},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -335,5 +338,38 @@ func TestLoad(t *testing.T) {
 	var verr *jobspec.ValidationError
 	if !errors.As(err, &verr) || !strings.HasPrefix(err.Error(), "spec "+specDir+"bad-unknown-keys.yaml: line 4: ") {
 		t.Errorf("Load(bad-unknown-keys.yaml): %v", err)
+	}
+}
+
+// TestParseJSONStrings checks text read from JSON against the standard
+// library's JSON decoder, for the escapes and characters that JSON and
+// YAML spell differently.
+func TestParseJSONStrings(t *testing.T) {
+	t.Parallel()
+	for _, literal := range []string{
+		`"plain"`,
+		`"a\/b"`,                    // escaped slash
+		`"\ud83d\ude00 joined"`,     // surrogate pair
+		`"\ud83d lone high"`,        // lone surrogate
+		`"\ude00\ud83d reversed"`,   // pair in the wrong order
+		`"\u00e9\t\n\b\f\\\"\r"`,    // the short escapes
+		"\"raw\u007fdel\"",          // DEL, raw
+		"\"raw\u0085nel \u0090c1\"", // C1 controls, raw
+		"\"bad \xff utf-8\"",        // invalid UTF-8
+		"\"\uFEFF zero width\"",     // byte order mark inside text
+	} {
+		input := `{"name":` + "\t" + literal + `}`
+		var want struct{ Name string }
+		if err := json.Unmarshal([]byte(input), &want); err != nil {
+			t.Fatalf("%s: %v", input, err)
+		}
+		spec, err := jobspec.Parse([]byte(input), "json")
+		if err != nil {
+			t.Errorf("%s: %v", input, err)
+			continue
+		}
+		if spec.GetName() != want.Name {
+			t.Errorf("%s: name %q, encoding/json reads %q", input, spec.GetName(), want.Name)
+		}
 	}
 }

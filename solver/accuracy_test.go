@@ -289,3 +289,88 @@ func TestProductSolutions(t *testing.T) {
 		})
 	}
 }
+
+// TestLumpedCapacitance checks a cube at Bi = 0.01 (on V/A) against the
+// lumped model θ = exp(−t/τ).
+// Source: exact.LumpedConvection and exact.TimeConstant (Incropera et al.,
+// 6th ed., §5.2); that 90 % of the energy is exchanged at t = τ·ln 10 is
+// common practice. The lumped model itself is off by about the Biot number
+// of each half-thickness (here 0.03), so the limits are 2 %.
+func TestLumpedCapacitance(t *testing.T) {
+	t.Parallel()
+	const cells, a = 6, testLength // octant of a cube of side 2a
+	g := testGrid(blockOctant([3]int{cells, cells, cells}, a/cells))
+	volume, area := a*a*a, 3*a*a // of the octant
+	hc := 0.01 * testK / (volume / area)
+	tau := exact.TimeConstant(1, testRhoCp, volume, hc, area)
+	initial, fluid := 1100.0, 300.0
+	p := problemFor(g, constantMaterial(testK, 1, testRhoCp), convection(hc, fluid), initial, 3*tau)
+	checkpoints := []float64{0.5 * tau, tau, math.Ln10 * tau, 3 * tau}
+	p.Landings = checkpoints
+	capacity := testRhoCp * volume * (fluid - initial)
+	var energy history // θ here is 1 − Q/Qmax
+	_, err := Solve(context.Background(), p, func(s *State) bool {
+		mean := 1 - s.StoredEnergy/capacity
+		energy.time = append(energy.time, s.Time)
+		energy.theta = append(energy.theta, mean)
+		for _, at := range checkpoints {
+			if s.Time != at {
+				continue
+			}
+			want := exact.LumpedConvection(at, tau)
+			if math.Abs(mean-want) > 0.02 {
+				t.Errorf("t = %.2fτ: mean θ = %.5f, lumped %.5f", at/tau, mean, want)
+			}
+			for c, r := range g.Region {
+				if got := (s.T[c] - fluid) / (initial - fluid); r != 0 && math.Abs(got-want) > 0.02 {
+					t.Errorf("t = %.2fτ: cell %d θ = %.5f, lumped %.5f", at/tau, c, got, want)
+					break
+				}
+			}
+		}
+		return false
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := energy.crossing(0.1) / (tau * math.Ln10); math.Abs(got-1) > 0.02 {
+		t.Errorf("90 %% of the energy after %.4f of τ·ln 10", got)
+	}
+}
+
+// TestLumpedRadiation checks a small copper-like sphere cooling by
+// radiation alone (Bi of the linearised radiation about 0.003) against the
+// closed-form lumped radiation time, evaluated for the model's own volume
+// and area so that only conduction, radiation and stepping are tested.
+// Source: exact.LumpedRadiationTime (Incropera et al., 6th ed., §5.3).
+func TestLumpedRadiation(t *testing.T) {
+	t.Parallel()
+	const radius, rho, cp, emissivity, initial, surroundings = 0.01, 8900.0, 385.0, 0.8, 1200.0, 300.0
+	g := testGrid(sphereOctant(10, radius))
+	volume := float64(g.PartCells()) * math.Pow(g.CellSize, 3)
+	area := g.Groups[0].ModelArea
+	tEnd, err := exact.LumpedRadiationTime(rho, cp, volume, area, emissivity, surroundings, initial, 450)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := problemFor(g, constantMaterial(400, rho, cp),
+		Exposure{Phases: []ExposurePhase{{Emissivity: emissivity, Surroundings: surroundings}}}, initial, tEnd)
+	var mean history // θ here is the mean temperature
+	_, err = Solve(context.Background(), p, func(s *State) bool {
+		mean.time = append(mean.time, s.Time)
+		mean.theta = append(mean.theta, initial+s.StoredEnergy/(rho*cp*volume))
+		return false
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, target := range []float64{1000, 800, 600, 500} {
+		want, err := exact.LumpedRadiationTime(rho, cp, volume, area, emissivity, surroundings, initial, target)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := mean.crossing(target) / want; !(math.Abs(got-1) < 0.01) {
+			t.Errorf("mean temperature %g K after %.5f of the exact time", target, got)
+		}
+	}
+}

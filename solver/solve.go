@@ -39,6 +39,12 @@ const (
 	growthLimit  = 2.0 // largest ratio of one step to the one planned before
 	shrinkLimit  = 0.5 // smallest such ratio for an accepted step
 	rejectFactor = 2.0 // a step changing more than this times MaxChange is redone
+	// timeLag is the relative time error backward Euler may accrue: the
+	// ratio of its estimated local error to the change of the step.
+	timeLag = 0.005
+	// localErrorFloor (of MaxChange) is a local error small enough to
+	// allow whatever the lag ratio says.
+	localErrorFloor = 1e-3
 	// bdf2RatioLimit keeps variable-step BDF2 zero-stable (the bound is 1+√2).
 	bdf2RatioLimit = 2.0
 	// newtonTolerance is the Newton pass change, relative to the largest
@@ -332,6 +338,19 @@ func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error)
 		}
 		state.Time = time
 		state.Step++
+		grown := h * s.MaxChange / change
+		if change == 0 {
+			grown = math.Inf(1)
+		}
+		if coef == backwardEulerCoefficients && dtPrev > 0 {
+			// Backward Euler runs late by about lte/change of the elapsed
+			// time; keep that ratio at timeLag, except in slow tails where
+			// the local error is negligible anyway.
+			allowed := max(timeLag*change, localErrorFloor*s.MaxChange)
+			if lte := r.localError(h / dtPrev); lte > allowed/100 {
+				grown = min(grown, h*math.Sqrt(allowed/lte)) // lte ∝ Δt²
+			}
+		}
 		r.tnm1, r.tn = r.tn, r.tnm1
 		copy(r.tn, r.t)
 		out.Steps, out.TotalIterations, out.EndTime = state.Step, state.TotalIterations, time
@@ -342,10 +361,6 @@ func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error)
 			break
 		}
 
-		grown := h * s.MaxChange / change
-		if change == 0 {
-			grown = math.Inf(1)
-		}
 		dtPrev = h
 		dt = min(max(grown, shrinkLimit*dt), growthLimit*dt, s.MaxStep)
 	}
@@ -516,6 +531,17 @@ func (r *run) storedEnergy() float64 {
 	sum := 0.0
 	r.forParts(func(c int, m *material) { sum += m.rhoV * m.h.At(r.t[c]) })
 	return sum
+}
+
+// localError estimates backward Euler's local error of the step just
+// taken as half the largest distance between the solution and the linear
+// extrapolation of the two before (ratio = this step / the one before).
+func (r *run) localError(ratio float64) float64 {
+	lte := 0.0
+	r.forParts(func(c int, _ *material) {
+		lte = max(lte, math.Abs(r.t[c]-r.tn[c]-ratio*(r.tn[c]-r.tnm1[c])))
+	})
+	return lte / 2
 }
 
 // largestChange returns max |T − T(n)| over the part.

@@ -24,8 +24,10 @@ import (
 // falls back to the generalized winding number cell by cell. Rows of
 // columns run on all CPUs.
 func (b *Body) ContainsGrid(origin [3]float64, cell float64, n [3]int, out []bool) {
-	if n[0] < 0 || n[1] < 0 || n[2] < 0 || !(cell > 0) || len(out) != n[0]*n[1]*n[2] {
-		panic(fmt.Sprintf("stl: ContainsGrid: need cell > 0 and len(out) = n[0]·n[1]·n[2]; got cell %v, n %v, len(out) %d", cell, n, len(out)))
+	finite := !math.IsInf(origin[0]+origin[1]+origin[2]+cell, 0) && !math.IsNaN(origin[0]+origin[1]+origin[2]+cell)
+	if n[0] < 0 || n[1] < 0 || n[2] < 0 || !(cell > 0) || !finite || len(out) != n[0]*n[1]*n[2] {
+		panic(fmt.Sprintf("stl: ContainsGrid: need finite origin, cell > 0 and len(out) = n[0]·n[1]·n[2]; got origin %v, cell %v, n %v, len(out) %d",
+			origin, cell, n, len(out)))
 	}
 	clear(out)
 	if len(out) == 0 {
@@ -56,14 +58,12 @@ func (b *Body) binRows(oz, cell float64, nz int) [][]int32 {
 	span := func(t *triangle) (int, int) {
 		zlo := min(t.v[0][2], t.v[1][2], t.v[2][2])
 		zhi := max(t.v[0][2], t.v[1][2], t.v[2][2])
-		klo := int(math.Max(0, math.Ceil((zlo-oz)/cell-0.5)))
-		khi := int(math.Min(float64(nz-1), math.Floor((zhi-oz)/cell-0.5)))
-		return klo, khi
+		return clampIndex(math.Ceil((zlo-oz)/cell-0.5), nz), clampIndex(math.Floor((zhi-oz)/cell-0.5), nz)
 	}
 	counts := make([]int32, nz)
 	for i := range b.tris {
 		klo, khi := span(&b.tris[i])
-		for k := klo; k <= khi; k++ {
+		for k := max(klo, 0); k <= min(khi, nz-1); k++ {
 			counts[k]++
 		}
 	}
@@ -73,11 +73,25 @@ func (b *Body) binRows(oz, cell float64, nz int) [][]int32 {
 	}
 	for i := range b.tris {
 		klo, khi := span(&b.tris[i])
-		for k := klo; k <= khi; k++ {
+		for k := max(klo, 0); k <= min(khi, nz-1); k++ {
 			rows[k] = append(rows[k], int32(i))
 		}
 	}
 	return rows
+}
+
+// clampIndex converts a cell position to an index without overflowing
+// the conversion (NaN and huge values included): positions below the
+// grid become −1 and above it n, so ranges beside the grid come out empty
+// once cut to [0, n−1].
+func clampIndex(v float64, n int) int {
+	switch {
+	case v >= 0 && v <= float64(n-1):
+		return int(v)
+	case v > float64(n-1):
+		return n
+	}
+	return -1
 }
 
 // crossing is where a ray along +x meets the surface in column j; step is
@@ -110,9 +124,9 @@ func (b *Body) fillRow(origin [3]float64, cell float64, n [3]int, k int, tris []
 			continue
 		}
 		// One column of margin on each side: the exact test below decides.
-		jlo := max(0, int(math.Ceil((ylo-origin[1])/cell-0.5))-1)
-		jhi := min(n[1]-1, int(math.Floor((yhi-origin[1])/cell-0.5))+1)
-		for j := jlo; j <= jhi; j++ {
+		jlo := clampIndex(math.Ceil((ylo-origin[1])/cell-0.5)-1, n[1])
+		jhi := clampIndex(math.Floor((yhi-origin[1])/cell-0.5)+1, n[1])
+		for j := max(jlo, 0); j <= min(jhi, n[1]-1); j++ {
 			y := origin[1] + cell*(float64(j)+0.5)
 			if x, step, ok := rayCrossing(t.v, y, z); ok {
 				cs = append(cs, crossing{int32(j), step, x})

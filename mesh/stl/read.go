@@ -216,6 +216,10 @@ func Read(r io.Reader, opt Options) (*Mesh, error) {
 		return nil, fmt.Errorf("%w: %s STL holds no triangles", ErrFormat, raw.format)
 	}
 	m := weld(raw, place)
+	lo, hi := m.bounds()
+	if d := sub(hi, lo); math.IsInf(dot(d, d), 0) {
+		return nil, fmt.Errorf("%w: %s STL coordinates span from %v to %v m, too large to compute with", ErrFormat, raw.format, lo, hi)
+	}
 	if opt.RepairHoles > 0 {
 		m.repairHoles(opt.RepairHoles)
 	}
@@ -234,7 +238,7 @@ func isBinary(data []byte) bool {
 	head := data[:min(len(data), 512)]
 	trimmed := bytes.TrimLeft(bytes.TrimPrefix(head, []byte("\xef\xbb\xbf")), " \t\r\n")
 	if !bytes.HasPrefix(bytes.ToLower(trimmed), []byte("solid")) {
-		return len(data) >= 84
+		return len(data) > 0
 	}
 	// A "solid" prefix followed by binary bytes is a binary file with a
 	// wrong size; report it as such rather than as broken text.
@@ -243,7 +247,7 @@ func isBinary(data []byte) bool {
 
 func parseBinary(data []byte, maxTris int) (*rawMesh, error) {
 	if len(data) < 84 {
-		return nil, fmt.Errorf("%w: binary STL: file has %d bytes, fewer than the 84-byte header", ErrFormat, len(data))
+		return nil, fmt.Errorf("%w: file has %d bytes, fewer than a binary STL's 84-byte header, and does not begin with \"solid\" as ASCII STL does", ErrFormat, len(data))
 	}
 	n := uint64(binary.LittleEndian.Uint32(data[80:84]))
 	if n > uint64(maxTris) {
@@ -356,7 +360,7 @@ func parseASCII(data []byte, maxTris int) (*rawMesh, error) {
 				return nil, fail("expected \"facet normal nx ny nz\" or \"endsolid\", found %q", strings.Join(f, " "))
 			}
 			if len(raw.tris) >= maxTris {
-				return nil, fail("more than max_triangles = %d triangles; raise max_triangles to read it", maxTris)
+				return nil, fmt.Errorf("%w: ASCII STL line %d: more than max_triangles = %d triangles; raise max_triangles to read it", ErrLimit, lineNo, maxTris)
 			}
 			if err := expect("outer", "loop"); err != nil {
 				return nil, err

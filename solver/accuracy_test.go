@@ -374,3 +374,61 @@ func TestLumpedRadiation(t *testing.T) {
 		}
 	}
 }
+
+// wallError runs a plane wall at Bi = 1 to Fo = 0.3 with fixed steps of
+// Fourier number dFo and returns the largest |θ − θ exact| over its cells.
+func wallError(t *testing.T, across int, scheme string, dFo float64) float64 {
+	t.Helper()
+	const bi, foEnd = 1.0, 0.3
+	g := testGrid(wallColumn(across, testLength))
+	step := dFo * testLength * testLength / testAlpha
+	initial, fluid := 1100.0, 300.0
+	p := problemFor(g, constantMaterial(testK, 1, testRhoCp), convection(bi*testK/testLength, fluid), initial, foEnd*testLength*testLength/testAlpha)
+	p.Stepping = Stepping{Scheme: scheme, FirstStep: step, MaxStep: step, MaxChange: 1e6, Tolerance: 1e-12}
+	var final []float64
+	_, err := Solve(context.Background(), p, func(s *State) bool {
+		final = s.T
+		return false
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	worst := 0.0
+	for c := range g.Region {
+		i, j, k := g.Coords(c)
+		want, err := exact.Theta(exact.PlaneWall, bi, foEnd, math.Abs(g.Centre(i, j, k)[0])/testLength)
+		if err != nil {
+			t.Fatal(err)
+		}
+		worst = max(worst, math.Abs((final[c]-fluid)/(initial-fluid)-want))
+	}
+	return worst
+}
+
+// TestConvergenceOrder checks that the error against the exact plane wall
+// falls at the promised rate: second order in space, first order in time
+// for backward Euler and second order for BDF2.
+// Source: exact.Theta (plane wall series, Incropera et al., 6th ed., §5.5).
+func TestConvergenceOrder(t *testing.T) {
+	t.Parallel()
+	cases := []struct {
+		name  string
+		errAt func(level int) float64 // level 0, 1, 2: cells or steps doubled each time
+		order float64
+	}{
+		// Steps small enough that BDF2's time error is far below the grid's.
+		{"space", func(l int) float64 { return wallError(t, 10<<l, BDF2, 1e-4) }, 2},
+		// 400 cells make the grid error far below the time error.
+		{"time backward Euler", func(l int) float64 { return wallError(t, 400, BackwardEuler, 0.01/float64(int(1)<<l)) }, 1},
+		{"time BDF2", func(l int) float64 { return wallError(t, 400, BDF2, 0.01/float64(int(1)<<l)) }, 2},
+	}
+	for _, tc := range cases {
+		e := [3]float64{tc.errAt(0), tc.errAt(1), tc.errAt(2)}
+		t.Logf("%s: errors %.3g %.3g %.3g", tc.name, e[0], e[1], e[2])
+		for l := range 2 {
+			if got := math.Log2(e[l] / e[l+1]); math.Abs(got-tc.order) > 0.2 {
+				t.Errorf("%s: errors %.3g → %.3g, observed order %.2f, want %g", tc.name, e[l], e[l+1], got, tc.order)
+			}
+		}
+	}
+}

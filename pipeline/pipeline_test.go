@@ -159,8 +159,8 @@ func TestSphereAgainstExactSeries(t *testing.T) {
 		if m.TimeS == nil {
 			t.Fatalf("milestone %s not reached", m.GetName())
 		}
-		if e := math.Abs(m.GetTimeS()-wantT) / wantT; e > 0.025 {
-			t.Errorf("milestone %s at %.2f s, exact %.2f s (%.2f%%)", m.GetName(), m.GetTimeS(), wantT, 100*e)
+		if e := math.Abs(m.GetTimeS().GetValue()-wantT) / wantT; e > 0.025 {
+			t.Errorf("milestone %s at %.2f s, exact %.2f s (%.2f%%)", m.GetName(), m.GetTimeS().GetValue(), wantT, 100*e)
 		}
 	}
 	if got := sum.GetFinalProbes()[1].GetPlacement(); got != "surface" {
@@ -247,7 +247,7 @@ func TestStopAtMilestones(t *testing.T) {
 	}
 	latest := 0.0
 	for _, m := range sum.GetMilestones() {
-		latest = math.Max(latest, m.GetTimeS())
+		latest = math.Max(latest, m.GetTimeS().GetValue())
 	}
 	if sum.GetEndTimeS() < latest || sum.GetEndTimeS() >= 2000 {
 		t.Errorf("ended at %g s; last milestone at %g s", sum.GetEndTimeS(), latest)

@@ -8,7 +8,7 @@ import (
 	"sort"
 	"time"
 
-	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/wrapperspb"
 
 	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
@@ -321,7 +321,7 @@ func (m *Model) summary(last report.Row, watches []*milestoneWatch, out *solver.
 	for _, w := range watches {
 		r := &soakv1.MilestoneResult{Name: w.spec.GetName()}
 		if w.reached {
-			r.TimeS = proto.Float64(w.time)
+			r.TimeS = wrapperspb.Double(w.time)
 		}
 		s.Milestones = append(s.Milestones, r)
 	}

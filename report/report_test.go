@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/wrapperspb"
 
 	soakv1 "soakfarm/proto/soak/v1"
 )
@@ -80,7 +80,7 @@ func TestSummaryJSON(t *testing.T) {
 		Name:    "x",
 		Caution: Caution,
 		Milestones: []*soakv1.MilestoneResult{
-			{Name: "reached", TimeS: proto.Float64(12)},
+			{Name: "reached", TimeS: wrapperspb.Double(12)},
 			{Name: "missed"},
 		},
 	})

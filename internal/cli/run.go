@@ -127,7 +127,7 @@ func printSummary(w io.Writer, s *soakv1.Summary, dir string) {
 		if m.TimeS == nil {
 			fmt.Fprintf(w, "  milestone %-20s not reached\n", m.GetName())
 		} else {
-			fmt.Fprintf(w, "  milestone %-20s %10.1f s\n", m.GetName(), m.GetTimeS())
+			fmt.Fprintf(w, "  milestone %-20s %10.1f s\n", m.GetName(), m.GetTimeS().GetValue())
 		}
 	}
 	for _, p := range s.GetFinalProbes() {

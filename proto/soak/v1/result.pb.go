@@ -11,6 +11,7 @@ package soakv1
 import (
 	protoreflect "google.golang.org/protobuf/reflect/protoreflect"
 	protoimpl "google.golang.org/protobuf/runtime/protoimpl"
+	wrapperspb "google.golang.org/protobuf/types/known/wrapperspb"
 	reflect "reflect"
 	sync "sync"
 	unsafe "unsafe"
@@ -265,9 +266,9 @@ func (x *Summary) GetVerification() *Verification {
 type MilestoneResult struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	Name  string                 `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
-	// Time the milestone was reached, s, interpolated between steps; absent
-	// when it was not reached.
-	TimeS         *float64 `protobuf:"fixed64,2,opt,name=time_s,json=timeS,proto3,oneof" json:"time_s,omitempty"`
+	// Time the milestone was reached, s, interpolated between steps; null
+	// when it was not reached (a wrapper, so JSON shows null, not nothing).
+	TimeS         *wrapperspb.DoubleValue `protobuf:"bytes,2,opt,name=time_s,json=timeS,proto3" json:"time_s,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -309,11 +310,11 @@ func (x *MilestoneResult) GetName() string {
 	return ""
 }
 
-func (x *MilestoneResult) GetTimeS() float64 {
-	if x != nil && x.TimeS != nil {
-		return *x.TimeS
+func (x *MilestoneResult) GetTimeS() *wrapperspb.DoubleValue {
+	if x != nil {
+		return x.TimeS
 	}
-	return 0
+	return nil
 }
 
 type ProbeReading struct {
@@ -1328,7 +1329,7 @@ var File_soak_v1_result_proto protoreflect.FileDescriptor
 
 const file_soak_v1_result_proto_rawDesc = "" +
 	"\n" +
-	"\x14soak/v1/result.proto\x12\asoak.v1\"\xc0\a\n" +
+	"\x14soak/v1/result.proto\x12\asoak.v1\x1a\x1egoogle/protobuf/wrappers.proto\"\xc0\a\n" +
 	"\aSummary\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x18\n" +
 	"\acaution\x18\x02 \x01(\tR\acaution\x12\x1f\n" +
@@ -1360,11 +1361,10 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\x06scheme\x18\x15 \x01(\tR\x06scheme\x12!\n" +
 	"\fwall_seconds\x18\x16 \x01(\x01R\vwallSeconds\x12\x1c\n" +
 	"\tartifacts\x18\x17 \x03(\tR\tartifacts\x129\n" +
-	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\"L\n" +
+	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\"Z\n" +
 	"\x0fMilestoneResult\x12\x12\n" +
-	"\x04name\x18\x01 \x01(\tR\x04name\x12\x1a\n" +
-	"\x06time_s\x18\x02 \x01(\x01H\x00R\x05timeS\x88\x01\x01B\t\n" +
-	"\a_time_s\"W\n" +
+	"\x04name\x18\x01 \x01(\tR\x04name\x123\n" +
+	"\x06time_s\x18\x02 \x01(\v2\x1c.google.protobuf.DoubleValueR\x05timeS\"W\n" +
 	"\fProbeReading\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x15\n" +
 	"\x06temp_c\x18\x02 \x01(\x01R\x05tempC\x12\x1c\n" +
@@ -1487,18 +1487,19 @@ func file_soak_v1_result_proto_rawDescGZIP() []byte {
 
 var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 12)
 var file_soak_v1_result_proto_goTypes = []any{
-	(*Summary)(nil),             // 0: soak.v1.Summary
-	(*MilestoneResult)(nil),     // 1: soak.v1.MilestoneResult
-	(*ProbeReading)(nil),        // 2: soak.v1.ProbeReading
-	(*SurfaceGroupSummary)(nil), // 3: soak.v1.SurfaceGroupSummary
-	(*GridSummary)(nil),         // 4: soak.v1.GridSummary
-	(*Verification)(nil),        // 5: soak.v1.Verification
-	(*Check)(nil),               // 6: soak.v1.Check
-	(*HandEstimate)(nil),        // 7: soak.v1.HandEstimate
-	(*MilestoneEstimate)(nil),   // 8: soak.v1.MilestoneEstimate
-	(*HandAnswer)(nil),          // 9: soak.v1.HandAnswer
-	(*CrossCheck)(nil),          // 10: soak.v1.CrossCheck
-	(*CrossCheckSample)(nil),    // 11: soak.v1.CrossCheckSample
+	(*Summary)(nil),                // 0: soak.v1.Summary
+	(*MilestoneResult)(nil),        // 1: soak.v1.MilestoneResult
+	(*ProbeReading)(nil),           // 2: soak.v1.ProbeReading
+	(*SurfaceGroupSummary)(nil),    // 3: soak.v1.SurfaceGroupSummary
+	(*GridSummary)(nil),            // 4: soak.v1.GridSummary
+	(*Verification)(nil),           // 5: soak.v1.Verification
+	(*Check)(nil),                  // 6: soak.v1.Check
+	(*HandEstimate)(nil),           // 7: soak.v1.HandEstimate
+	(*MilestoneEstimate)(nil),      // 8: soak.v1.MilestoneEstimate
+	(*HandAnswer)(nil),             // 9: soak.v1.HandAnswer
+	(*CrossCheck)(nil),             // 10: soak.v1.CrossCheck
+	(*CrossCheckSample)(nil),       // 11: soak.v1.CrossCheckSample
+	(*wrapperspb.DoubleValue)(nil), // 12: google.protobuf.DoubleValue
 }
 var file_soak_v1_result_proto_depIdxs = []int32{
 	1,  // 0: soak.v1.Summary.milestones:type_name -> soak.v1.MilestoneResult
@@ -1506,20 +1507,21 @@ var file_soak_v1_result_proto_depIdxs = []int32{
 	3,  // 2: soak.v1.Summary.surface_groups:type_name -> soak.v1.SurfaceGroupSummary
 	4,  // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
 	5,  // 4: soak.v1.Summary.verification:type_name -> soak.v1.Verification
-	7,  // 5: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
-	8,  // 6: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
-	10, // 7: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
-	6,  // 8: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
-	8,  // 9: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
-	9,  // 10: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
-	6,  // 11: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
-	6,  // 12: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
-	11, // 13: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
-	14, // [14:14] is the sub-list for method output_type
-	14, // [14:14] is the sub-list for method input_type
-	14, // [14:14] is the sub-list for extension type_name
-	14, // [14:14] is the sub-list for extension extendee
-	0,  // [0:14] is the sub-list for field type_name
+	12, // 5: soak.v1.MilestoneResult.time_s:type_name -> google.protobuf.DoubleValue
+	7,  // 6: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
+	8,  // 7: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
+	10, // 8: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
+	6,  // 9: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
+	8,  // 10: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
+	9,  // 11: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
+	6,  // 12: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
+	6,  // 13: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
+	11, // 14: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
+	15, // [15:15] is the sub-list for method output_type
+	15, // [15:15] is the sub-list for method input_type
+	15, // [15:15] is the sub-list for extension type_name
+	15, // [15:15] is the sub-list for extension extendee
+	0,  // [0:15] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_result_proto_init() }
@@ -1527,7 +1529,6 @@ func file_soak_v1_result_proto_init() {
 	if File_soak_v1_result_proto != nil {
 		return
 	}
-	file_soak_v1_result_proto_msgTypes[1].OneofWrappers = []any{}
 	file_soak_v1_result_proto_msgTypes[3].OneofWrappers = []any{}
 	file_soak_v1_result_proto_msgTypes[8].OneofWrappers = []any{}
 	file_soak_v1_result_proto_msgTypes[9].OneofWrappers = []any{}

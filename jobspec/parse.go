@@ -96,11 +96,19 @@ func Parse(data []byte, format string) (*soakv1.JobSpec, error) {
 		return nil, fmt.Errorf("unknown spec format %q: want \"yaml\", \"json\" or \"\" to guess", format)
 	}
 
-	var doc yaml.Node
-	if err := yaml.Unmarshal(data, &doc); err != nil {
+	var doc, next yaml.Node
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	if err := dec.Decode(&doc); errors.Is(err, io.EOF) {
+		return nil, errors.New("spec is empty")
+	} else if err != nil {
 		return nil, fmt.Errorf("reading spec as %s: %w", strings.ToUpper(format), err)
 	}
-	if doc.Kind == 0 || len(doc.Content) == 0 {
+	// Two specs pasted into one file would otherwise lose the second
+	// without a word.
+	if err := dec.Decode(&next); !errors.Is(err, io.EOF) {
+		return nil, fmt.Errorf("line %d: a spec file holds one YAML document; this is a second one", next.Line)
+	}
+	if len(doc.Content) == 0 {
 		return nil, errors.New("spec is empty")
 	}
 	root := doc.Content[0]

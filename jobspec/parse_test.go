@@ -220,6 +220,8 @@ func TestParseErrors(t *testing.T) {
 		{"top-level list", "- a\n- b\n", "", "line 1: a spec is a mapping of keys to values, not a list"},
 		{"top-level number", "42", "", "not 42"},
 		{"unknown format", "name: x", "toml", `unknown spec format "toml"`},
+		{"two documents", "name: a\n---\nname: b\n", "", "line 2: a spec file holds one YAML document"},
+		{"syntax error in a second document", "name: a\n---\nname: [b\n", "", "holds one YAML document"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {

@@ -256,3 +256,43 @@ func TestStopAtMilestones(t *testing.T) {
 		t.Error(err)
 	}
 }
+
+// A schedule of exposure changes, at Bi well below 0.1, follows lumped
+// capacitance phase by phase: T = T∞ + (T0 − T∞)·exp(−t/τ), τ = ρ·cp·V/(h·A)
+// (lumped capacitance; common practice below Bi 0.1).
+func TestScheduleFollowsLumpedPhases(t *testing.T) {
+	t.Parallel()
+	const r, rho, cp, k = 0.01, 2700.0, 900.0, 200.0 // a small aluminium ball, Bi ≈ 0.003
+	h1, h2 := 60.0, 20.0
+	spec := sphereSpec(r, h1, k, 1200, 12)
+	spec.Material = &soakv1.Material{DensityKgM3: rho, ConductivityWMk: proto.Float64(k), SpecificHeatJKgk: proto.Float64(cp)}
+	spec.InitialC = proto.Float64(20)
+	spec.Exposure[0].FluidC = proto.Float64(500)
+	spec.Exposure[0].Schedule = []*soakv1.ExposureChange{{AtS: 400, HWM2K: proto.Float64(h2), FluidC: proto.Float64(30)}}
+	spec.Milestones = nil
+	dir := t.TempDir()
+	if _, err := Run(context.Background(), spec, dir, Options{}); err != nil {
+		t.Fatal(err)
+	}
+	_, rows := readCSV(t, filepath.Join(dir, report.ProbesFile))
+	lc := r / 3
+	tau1, tau2 := rho*cp*lc/h1, rho*cp*lc/h2
+	t400 := 500 + (20-500)*math.Exp(-400/tau1)
+	landed := false
+	for _, row := range rows {
+		tm := row[0]
+		var want float64
+		if tm <= 400 {
+			want = 500 + (20-500)*math.Exp(-tm/tau1)
+		} else {
+			want = 30 + (t400-30)*math.Exp(-(tm-400)/tau2)
+		}
+		landed = landed || tm == 400
+		if math.Abs(row[5]-want) > 0.01*480 {
+			t.Errorf("t=%.1f s: mean %.2f °C, lumped %.2f °C", tm, row[5], want)
+		}
+	}
+	if !landed {
+		t.Error("no step ended exactly on the schedule change at 400 s")
+	}
+}

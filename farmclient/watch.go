@@ -94,6 +94,11 @@ func (c *Client) watchStream(ctx context.Context, jobID string, last *uint64, fn
 		if ev.GetSequence() <= *last {
 			continue // already handled before a resume
 		}
+		// Events may already be buffered when the caller gives up; it
+		// must not be called again after that.
+		if err := ctx.Err(); err != nil {
+			return err
+		}
 		if err := fn(ev); err != nil {
 			return &callbackError{err: err}
 		}

@@ -107,7 +107,7 @@ func milestoneLine(sum *soakv1.Summary) string {
 		if m.TimeS == nil {
 			parts = append(parts, m.GetName()+" not reached")
 		} else {
-			parts = append(parts, fmt.Sprintf("%s %.0f s", m.GetName(), m.GetTimeS()))
+			parts = append(parts, fmt.Sprintf("%s %.0f s", m.GetName(), m.GetTimeS().GetValue()))
 		}
 	}
 	if len(parts) == 0 {

@@ -139,9 +139,9 @@ func TestFarmResultEqualsLocalRun(t *testing.T) {
 	}
 
 	// The record and the table agree with what the watch saw.
-	code, stdout, _ = soak(ctx, "jobs", "--farm", addr, "--state", "finished")
+	code, stdout, stderr = soak(ctx, "jobs", "--farm", addr, "--state", "finished")
 	if code != ExitOK || !strings.Contains(stdout, id) || !strings.Contains(stdout, "finished") {
-		t.Errorf("soak jobs --state finished: exit %d, want a row for %s:\n%s", code, id, stdout)
+		t.Errorf("soak jobs --state finished: exit %d, want a row for %s:\n%s%s", code, id, stdout, stderr)
 	}
 	// Watching an ended job replays its events and exits with its outcome.
 	code, _, stderr = soak(ctx, "watch", "--farm", addr, id)

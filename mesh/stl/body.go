@@ -50,7 +50,8 @@ type bvhNode struct {
 	lo, hi     vec
 	centre     vec     // area-weighted centroid of the node's triangles
 	areaNormal vec     // sum of the triangles' area vectors
-	radius     float64 // largest distance from centre to a corner
+	area       float64 // sum of the triangles' areas
+	radius     float64 // no corner lies farther from centre
 	first      int32
 	count      int32 // 0 for an inner node
 }
@@ -159,6 +160,9 @@ func solidAngle(t [3]vec, p vec) float64 {
 	a, bb, c := sub(t[0], p), sub(t[1], p), sub(t[2], p)
 	la, lb, lc := norm(a), norm(bb), norm(c)
 	num := dot(a, cross(bb, c))
+	if num == 0 {
+		return 0 // p in the triangle's plane: on the surface it counts half by symmetry
+	}
 	den := la*lb*lc + dot(a, bb)*lc + dot(a, c)*lb + dot(bb, c)*la
 	return 2 * math.Atan2(num, den)
 }
@@ -305,11 +309,11 @@ func (b *Body) build() {
 	b.summarise(0)
 }
 
-// summarise fills the box, centroid, area vector and radius of node i
-// and its subtree, children first.
+// summarise fills the box, centroid, area vector, area and radius of node
+// i and its subtree, children first. An inner node's radius is bounded
+// through its children's spheres, which keeps the build linear.
 func (b *Body) summarise(i int32) {
 	nd := &b.nodes[i]
-	var tris []triangle
 	if nd.count == 0 {
 		b.summarise(nd.first)
 		b.summarise(nd.first + 1)
@@ -317,50 +321,39 @@ func (b *Body) summarise(i int32) {
 		for k := range 3 {
 			nd.lo[k], nd.hi[k] = min(l.lo[k], r.lo[k]), max(l.hi[k], r.hi[k])
 		}
-		lo, hi := b.leafRange(i)
-		tris = b.tris[lo:hi]
-	} else {
-		tris = b.tris[nd.first : nd.first+nd.count]
-		nd.lo, nd.hi = tris[0].v[0], tris[0].v[0]
-		for _, t := range tris {
-			for _, v := range t.v {
-				for k := range 3 {
-					nd.lo[k], nd.hi[k] = min(nd.lo[k], v[k]), max(nd.hi[k], v[k])
-				}
+		nd.areaNormal = add(l.areaNormal, r.areaNormal)
+		nd.area = l.area + r.area
+		nd.centre = scale(add(nd.lo, nd.hi), 0.5)
+		if nd.area > 0 {
+			nd.centre = scale(add(scale(l.centre, l.area), scale(r.centre, r.area)), 1/nd.area)
+		}
+		nd.radius = max(l.radius+norm(sub(l.centre, nd.centre)), r.radius+norm(sub(r.centre, nd.centre)))
+		return
+	}
+	tris := b.tris[nd.first : nd.first+nd.count]
+	nd.lo, nd.hi = tris[0].v[0], tris[0].v[0]
+	var weighted vec
+	for _, t := range tris {
+		for _, v := range t.v {
+			for k := range 3 {
+				nd.lo[k], nd.hi[k] = min(nd.lo[k], v[k]), max(nd.hi[k], v[k])
 			}
 		}
-	}
-	var weighted vec
-	var area float64
-	for _, t := range tris {
 		av := areaVector(t.v)
 		a := norm(av)
 		nd.areaNormal = add(nd.areaNormal, av)
 		weighted = add(weighted, scale(centroid(t.v), a))
-		area += a
+		nd.area += a
 	}
 	nd.centre = scale(add(nd.lo, nd.hi), 0.5)
-	if area > 0 {
-		nd.centre = scale(weighted, 1/area)
+	if nd.area > 0 {
+		nd.centre = scale(weighted, 1/nd.area)
 	}
 	for _, t := range tris {
 		for _, v := range t.v {
 			nd.radius = max(nd.radius, norm(sub(v, nd.centre)))
 		}
 	}
-}
-
-// leafRange returns the span of b.tris under node i: the subtree's
-// triangles are contiguous because build splits spans in place.
-func (b *Body) leafRange(i int32) (lo, hi int32) {
-	l, r := i, i
-	for b.nodes[l].count == 0 {
-		l = b.nodes[l].first
-	}
-	for b.nodes[r].count == 0 {
-		r = b.nodes[r].first + 1
-	}
-	return b.nodes[l].first, b.nodes[r].first + b.nodes[r].count
 }
 
 // selectNth partially orders s so that s[n] has the n-th smallest key,

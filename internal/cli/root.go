@@ -81,6 +81,7 @@ func newRoot(s streams) *cobra.Command {
 	// One constructor per command; each lives in its own file.
 	root.AddCommand(
 		newRunCmd(s),
+		newEstimateCmd(s),
 		newSubmitCmd(s), newWatchCmd(s), newJobsCmd(s), newCancelCmd(s), newFetchCmd(s), newDemoCmd(s),
 	)
 	return root

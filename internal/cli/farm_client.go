@@ -435,23 +435,34 @@ func outcomeError(outcomes []outcome) error {
 // time a job passes another tenth of its simulated time. Event lines
 // (start, milestone, end) go above the bars in both cases.
 type board struct {
-	mu    sync.Mutex
-	w     io.Writer
-	tty   bool
+	mu  sync.Mutex
+	w   io.Writer
+	tty bool
+	// width is the terminal's; a bar line longer than it would wrap and
+	// throw off the redraw.
+	width int
 	rows  []*boardRow
 	drawn int
 }
 
 type boardRow struct {
-	name   string
-	bar    *progressbar.ProgressBar
-	tenths int
-	done   bool
+	name    string
+	bar     *progressbar.ProgressBar
+	tenths  int
+	started bool
+	done    bool
 }
 
 func newBoard(w io.Writer) *board {
-	f, ok := w.(*os.File)
-	return &board{w: w, tty: ok && term.IsTerminal(int(f.Fd()))}
+	b := &board{w: w}
+	if f, ok := w.(*os.File); ok && term.IsTerminal(int(f.Fd())) {
+		b.tty = true
+		b.width = 80
+		if cols, _, err := term.GetSize(int(f.Fd())); err == nil && cols > 0 {
+			b.width = cols
+		}
+	}
+	return b
 }
 
 func (b *board) add(name string, endS float64) *boardRow {
@@ -474,6 +485,7 @@ func (b *board) show(r *boardRow, ev *soakv1.JobEvent) {
 	defer b.mu.Unlock()
 	switch k := ev.GetKind().(type) {
 	case *soakv1.JobEvent_Progress:
+		r.started = true
 		updateSimBar(r.bar, k.Progress)
 		if b.tty {
 			b.redraw()
@@ -526,7 +538,11 @@ func (b *board) redraw() {
 		if r.done {
 			continue
 		}
-		fmt.Fprintf(b.w, "%s %s\n", r.name, barText(r.bar))
+		line := []rune(r.name + " waiting")
+		if r.started {
+			line = []rune(r.name + " " + barText(r.bar))
+		}
+		fmt.Fprintf(b.w, "\r%s\n", string(line[:min(len(line), b.width-1)]))
 		b.drawn++
 	}
 }

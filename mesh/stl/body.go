@@ -104,6 +104,33 @@ func (b *Body) Volume() float64 { return b.volume }
 // Area returns the sum of the triangle areas, m².
 func (b *Body) Area() float64 { return b.area }
 
+// FacingAreas splits the surface by outward normal: facing[d] is the area
+// of the triangles whose normal lies within 45° of direction d (−x, +x,
+// −y, +y, −z, +z, the voxel grid's order) and rest the area of the others.
+// For a mesh the split is exact: each triangle has one normal.
+func (b *Body) FacingAreas() (facing [6]float64, rest float64) {
+	cos45 := math.Sqrt(0.5)
+	for _, t := range b.tris {
+		a := norm(areaVector(t.v))
+		placed := false
+		for k := range 3 {
+			if c := t.normal[k]; math.Abs(c) >= cos45 {
+				d := 2 * k
+				if c > 0 {
+					d++
+				}
+				facing[d] += a
+				placed = true
+				break
+			}
+		}
+		if !placed {
+			rest += a
+		}
+	}
+	return facing, rest
+}
+
 // FaceGroups returns the named surfaces, indexed as SurfaceAt's group.
 func (b *Body) FaceGroups() []FaceGroup { return append([]FaceGroup(nil), b.groups...) }
 

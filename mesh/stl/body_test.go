@@ -378,3 +378,20 @@ func TestSurfaceNormal(t *testing.T) {
 		t.Fatalf("side normal %v, group %d", nrm, g)
 	}
 }
+
+// FacingAreas of the bracket, by hand from its profile (mm): faces normal
+// to −y: the mounting face 80·40; +y: leg top 6·40, rib tops 2·4·40 and
+// flange top (80−6−2·4)·40; −x: leg back 60·40 and the ribs' left sides
+// 2·14·40; +x: flange end 6·40, leg face 54·40 and the ribs' right sides
+// 2·14·40; ±z: the profile, 916 each; nothing else.
+func TestFacingAreas(t *testing.T) {
+	t.Parallel()
+	const mm2 = 1e-6
+	b := bodyOf(t, "bracket.stl")
+	facing, rest := b.FacingAreas()
+	want := [6]float64{(60 + 2*14) * 40, (6 + 54 + 2*14) * 40, 80 * 40, (6 + 2*4 + 80 - 6 - 2*4) * 40, 916, 916}
+	for d := range 6 {
+		within(t, "facing area "+[]string{"-x", "+x", "-y", "+y", "-z", "+z"}[d], facing[d], want[d]*mm2, 1e-15)
+	}
+	within(t, "rest", rest, 0, 0)
+}

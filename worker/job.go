@@ -1,0 +1,410 @@
+package worker
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"sort"
+	"sync"
+	"time"
+
+	"github.com/nats-io/nats.go/jetstream"
+	"google.golang.org/protobuf/types/known/timestamppb"
+
+	"soakfarm/pipeline"
+	soakv1 "soakfarm/proto/soak/v1"
+	"soakfarm/scheduler/store"
+)
+
+// queue is what handling a message needs to know about the queue.
+type queue struct {
+	store      *store.Store
+	ackWait    time.Duration
+	maxDeliver int
+}
+
+// bookkeepingTimeout bounds each record, event or queue call of a job. It
+// does not derive from the worker's context, so that a shutting-down
+// worker still hands its jobs back.
+const bookkeepingTimeout = 10 * time.Second
+
+// Outcomes of claiming a job record.
+var (
+	errAlreadyEnded  = errors.New("job already ended")
+	errHeldElsewhere = errors.New("job is running on another delivery")
+	errNotOurs       = errors.New("job record moved on without this attempt")
+)
+
+// lostWorkerReason closes an attempt whose worker vanished.
+const lostWorkerReason = "worker stopped responding (no heartbeat within the acknowledgement wait)"
+
+// claim is one job this worker has taken.
+type claim struct {
+	id      string
+	attempt uint32
+	worker  string
+	msg     jetstream.Msg
+	last    bool // the queue will not deliver the job again
+	log     *slog.Logger
+}
+
+// ours reports whether the record still shows this claim running.
+func (c *claim) ours(job *soakv1.Job) bool {
+	a := store.LastAttempt(job)
+	return job.GetState() == soakv1.JobState_JOB_STATE_RUNNING && a != nil &&
+		a.GetNumber() == c.attempt && a.GetWorker() == c.worker && a.GetEndTime() == nil
+}
+
+func bookkeeping() (context.Context, context.CancelFunc) {
+	return context.WithTimeout(context.Background(), bookkeepingTimeout)
+}
+
+// handle takes one queue message through to an acknowledgement.
+func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
+	id := string(msg.Data())
+	log := w.log.With("job", id)
+	md, err := msg.Metadata()
+	if err != nil {
+		log.Error("queue message without metadata", "err", err)
+		return
+	}
+	c := &claim{
+		id: id, worker: w.cfg.Name, msg: msg, log: log,
+		last: q.maxDeliver > 0 && md.NumDelivered >= uint64(q.maxDeliver),
+	}
+	job, err := w.claim(q, c, md.NumDelivered)
+	switch {
+	case errors.Is(err, store.ErrJobNotFound):
+		log.Warn("queue message for a job without record; dropping it")
+		terminate(msg, log)
+		return
+	case errors.Is(err, errAlreadyEnded), errors.Is(err, errHeldElsewhere):
+		log.Info("dropping queue message", "why", err)
+		ack(msg, log)
+		return
+	case err != nil:
+		log.Warn("claim job", "err", err)
+		nak(msg, 2*time.Second, log)
+		return
+	}
+	if store.IsFinal(job.GetState()) { // cancelled while queued
+		w.ended(q, c, job)
+		return
+	}
+	log.Info("job started", "attempt", c.attempt, "delivery", md.NumDelivered)
+	c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Started{Started: &soakv1.JobStarted{Worker: c.worker, Attempt: c.attempt}}})
+
+	jobCtx, cancel := context.WithCancelCause(runCtx)
+	defer cancel(nil)
+	defer w.track(id, cancel)()
+	if job.GetCancelRequested() { // asked between claim and track
+		cancel(errCancelRequested)
+	}
+	heartbeatDone := make(chan struct{})
+	var heartbeats sync.WaitGroup
+	heartbeats.Go(func() { c.heartbeat(q, cancel, heartbeatDone) })
+	defer func() {
+		close(heartbeatDone)
+		heartbeats.Wait()
+	}()
+
+	outDir, err := os.MkdirTemp(w.cfg.WorkDir, "soak-"+id+"-")
+	if err != nil {
+		w.failAttempt(q, c, fmt.Errorf("output folder: %w", err))
+		return
+	}
+	defer os.RemoveAll(outDir)
+	summary, runErr := w.cfg.Runner(jobCtx, job.GetSpec(), outDir, pipeline.Options{
+		Progress: c.progressPublisher(q, w.cfg.ProgressInterval),
+		Milestone: func(m *soakv1.MilestoneReached) {
+			c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Milestone{Milestone: m}})
+		},
+		Threads: w.cfg.Threads,
+	})
+	cause := context.Cause(jobCtx)
+	switch {
+	case runErr == nil:
+		w.finish(q, c, summary, outDir)
+	case runCtx.Err() != nil:
+		w.handBack(q, c)
+	case errors.Is(cause, errCancelRequested):
+		w.cancelled(q, c)
+	case errors.Is(cause, errSuperseded):
+		// Another delivery owns the job; its worker acknowledges.
+		log.Warn("job taken over elsewhere; dropping this attempt")
+	default:
+		w.failAttempt(q, c, runErr)
+	}
+}
+
+// claim moves the record to running under a new attempt, or reports why
+// the message is not to be run. A job cancelled while queued is ended
+// here.
+func (w *Worker) claim(q queue, c *claim, delivery uint64) (*soakv1.Job, error) {
+	ctx, done := bookkeeping()
+	defer done()
+	return q.store.UpdateJob(ctx, c.id, func(job *soakv1.Job) error {
+		if store.IsFinal(job.GetState()) {
+			return errAlreadyEnded
+		}
+		if job.GetState() == soakv1.JobState_JOB_STATE_RUNNING && delivery == 1 {
+			// A first delivery finding the job running is a second
+			// message for the job, not a redelivery.
+			return errHeldElsewhere
+		}
+		now := time.Now()
+		// A running record on a redelivery: the previous worker is gone.
+		store.CloseOpenAttempt(job, now, lostWorkerReason)
+		if job.GetCancelRequested() {
+			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
+			return nil
+		}
+		c.attempt = uint32(len(job.GetAttempts()) + 1)
+		job.Attempts = append(job.Attempts, &soakv1.Attempt{Number: c.attempt, Worker: c.worker, StartTime: timestamppb.New(now)})
+		job.State = soakv1.JobState_JOB_STATE_RUNNING
+		job.Worker = c.worker
+		if job.GetStartTime() == nil {
+			job.StartTime = timestamppb.New(now)
+		}
+		return nil
+	})
+}
+
+// heartbeat tells the server the job is in progress every AckWait/3 and
+// reads the record, stopping the run when a cancel notice was missed or
+// another delivery took the job over.
+func (c *claim) heartbeat(q queue, cancel context.CancelCauseFunc, done <-chan struct{}) {
+	tick := time.NewTicker(max(q.ackWait/3, 100*time.Millisecond))
+	defer tick.Stop()
+	for {
+		select {
+		case <-done:
+			return
+		case <-tick.C:
+		}
+		if err := c.msg.InProgress(); err != nil {
+			c.log.Warn("heartbeat", "err", err)
+		}
+		ctx, stop := bookkeeping()
+		job, _, err := q.store.Job(ctx, c.id)
+		stop()
+		switch {
+		case err != nil:
+			c.log.Warn("heartbeat: read job", "err", err)
+		case !c.ours(job):
+			cancel(errSuperseded)
+		case job.GetCancelRequested():
+			cancel(errCancelRequested)
+		}
+	}
+}
+
+// progressPublisher returns a Progress hook that appends at most one
+// progress event per interval.
+func (c *claim) progressPublisher(q queue, interval time.Duration) func(*soakv1.JobProgress) {
+	var last time.Time
+	return func(p *soakv1.JobProgress) {
+		if now := time.Now(); now.Sub(last) >= interval {
+			last = now
+			c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Progress{Progress: p}})
+		}
+	}
+}
+
+// appendEvent adds a non-final event to the job's log; a failure only
+// costs watchers an event, so it is logged, not returned.
+func (c *claim) appendEvent(q queue, ev *soakv1.JobEvent) {
+	ctx, done := bookkeeping()
+	defer done()
+	if _, err := q.store.AppendEvent(ctx, c.id, ev); err != nil && !errors.Is(err, store.ErrJobEnded) {
+		c.log.Warn("publish event", "err", err)
+	}
+}
+
+// update changes the record if it still shows this claim running.
+func (c *claim) update(q queue, change func(job *soakv1.Job, now time.Time)) (*soakv1.Job, error) {
+	ctx, done := bookkeeping()
+	defer done()
+	return q.store.UpdateJob(ctx, c.id, func(job *soakv1.Job) error {
+		if !c.ours(job) {
+			return errNotOurs
+		}
+		change(job, time.Now())
+		return nil
+	})
+}
+
+// finish uploads the result files and ends the job as finished, unless
+// the record says the attempt lost the job or a cancel came in.
+func (w *Worker) finish(q queue, c *claim, summary *soakv1.Summary, outDir string) {
+	ctx, done := bookkeeping()
+	job, _, err := q.store.Job(ctx, c.id)
+	done()
+	switch {
+	case err != nil:
+		w.failAttempt(q, c, fmt.Errorf("read job before upload: %w", err))
+		return
+	case !c.ours(job):
+		c.log.Warn("job taken over elsewhere; discarding this result")
+		return
+	case job.GetCancelRequested():
+		w.cancelled(q, c)
+		return
+	}
+	artifacts, err := upload(q.store, c, outDir)
+	if err != nil {
+		w.failAttempt(q, c, err)
+		return
+	}
+	job, err = c.update(q, func(job *soakv1.Job, now time.Time) {
+		if job.GetCancelRequested() {
+			store.CloseOpenAttempt(job, now, "cancelled")
+			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
+			return
+		}
+		a := store.LastAttempt(job)
+		a.EndTime = timestamppb.New(now)
+		store.End(job, soakv1.JobState_JOB_STATE_FINISHED, now, "")
+		job.Summary = summary
+		job.Artifacts = artifacts
+	})
+	if errors.Is(err, errNotOurs) {
+		c.log.Warn("job taken over elsewhere; discarding this result")
+		return
+	}
+	if err != nil {
+		c.log.Error("end job", "err", err)
+		nak(c.msg, 2*time.Second, c.log)
+		return
+	}
+	c.log.Info("job finished", "state", job.GetState().String(), "artifacts", len(artifacts))
+	w.ended(q, c, job)
+}
+
+// upload puts every regular file of outDir into the result store, in name
+// order, and lists them.
+func upload(st *store.Store, c *claim, outDir string) ([]*soakv1.Artifact, error) {
+	entries, err := os.ReadDir(outDir)
+	if err != nil {
+		return nil, fmt.Errorf("list results: %w", err)
+	}
+	sort.Slice(entries, func(i, j int) bool { return entries[i].Name() < entries[j].Name() })
+	var artifacts []*soakv1.Artifact
+	for _, e := range entries {
+		if !e.Type().IsRegular() {
+			continue
+		}
+		// Each file gets its own deadline: result files may be large.
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
+		a, err := st.PutArtifact(ctx, c.id, c.attempt, filepath.Join(outDir, e.Name()))
+		cancel()
+		if err != nil {
+			return nil, err
+		}
+		artifacts = append(artifacts, a)
+	}
+	return artifacts, nil
+}
+
+// cancelled ends the job as cancelled after its run stopped.
+func (w *Worker) cancelled(q queue, c *claim) {
+	job, err := c.update(q, func(job *soakv1.Job, now time.Time) {
+		store.CloseOpenAttempt(job, now, "cancelled")
+		store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
+	})
+	if errors.Is(err, errNotOurs) {
+		return
+	}
+	if err != nil {
+		c.log.Error("end job", "err", err)
+		nak(c.msg, 2*time.Second, c.log)
+		return
+	}
+	c.log.Info("job cancelled")
+	w.ended(q, c, job)
+}
+
+// failAttempt records a failed attempt. On the last delivery the job
+// fails with every attempt's reason; before that it goes back to the
+// queue after a delay that grows with the attempts.
+func (w *Worker) failAttempt(q queue, c *claim, runErr error) {
+	job, err := c.update(q, func(job *soakv1.Job, now time.Time) {
+		store.CloseOpenAttempt(job, now, runErr.Error())
+		switch {
+		case job.GetCancelRequested():
+			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
+		case c.last:
+			store.End(job, soakv1.JobState_JOB_STATE_FAILED, now, store.AttemptsReport(job))
+		default:
+			job.State = soakv1.JobState_JOB_STATE_QUEUED
+		}
+	})
+	if errors.Is(err, errNotOurs) {
+		return
+	}
+	if err != nil {
+		c.log.Error("record failed attempt", "err", err)
+		nak(c.msg, 2*time.Second, c.log)
+		return
+	}
+	c.log.Warn("attempt failed", "attempt", c.attempt, "err", runErr, "state", job.GetState().String())
+	if store.IsFinal(job.GetState()) {
+		w.ended(q, c, job)
+		return
+	}
+	nak(c.msg, time.Duration(c.attempt)*w.cfg.RetryDelay, c.log)
+}
+
+// handBack returns a job to the queue when the worker shuts down.
+func (w *Worker) handBack(q queue, c *claim) {
+	_, err := c.update(q, func(job *soakv1.Job, now time.Time) {
+		store.CloseOpenAttempt(job, now, errShutdown.Error())
+		job.State = soakv1.JobState_JOB_STATE_QUEUED
+	})
+	if err != nil && !errors.Is(err, errNotOurs) {
+		c.log.Warn("hand back job", "err", err)
+	}
+	c.log.Info("job handed back to the queue")
+	nak(c.msg, 0, c.log)
+}
+
+// ended closes the log of an ended job and removes its queue message.
+func (w *Worker) ended(q queue, c *claim, job *soakv1.Job) {
+	ctx, done := bookkeeping()
+	defer done()
+	if err := q.store.EnsureFinalEvent(ctx, job); err != nil {
+		c.log.Warn("final event", "err", err)
+	}
+	if err := c.msg.DoubleAck(ctx); err != nil {
+		c.log.Warn("ack", "err", err)
+	}
+}
+
+func ack(msg jetstream.Msg, log *slog.Logger) {
+	ctx, done := bookkeeping()
+	defer done()
+	if err := msg.DoubleAck(ctx); err != nil {
+		log.Warn("ack", "err", err)
+	}
+}
+
+func nak(msg jetstream.Msg, delay time.Duration, log *slog.Logger) {
+	var err error
+	if delay > 0 {
+		err = msg.NakWithDelay(delay)
+	} else {
+		err = msg.Nak()
+	}
+	if err != nil {
+		log.Warn("nak", "err", err)
+	}
+}
+
+func terminate(msg jetstream.Msg, log *slog.Logger) {
+	if err := msg.Term(); err != nil {
+		log.Warn("term", "err", err)
+	}
+}

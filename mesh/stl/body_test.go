@@ -395,3 +395,14 @@ func TestFacingAreas(t *testing.T) {
 	}
 	within(t, "rest", rest, 0, 0)
 }
+
+// The voxeliser's Solid interface (package mesh), restated here because
+// mesh will import this package: *Body must satisfy it structurally.
+var _ interface {
+	Contains(p [3]float64) bool
+	Bounds() (lo, hi [3]float64)
+	SurfaceNormal(p [3]float64) [3]float64
+	Volume() float64
+	Area() float64
+	FacingAreas() (facing [6]float64, rest float64)
+} = (*Body)(nil)

@@ -91,6 +91,7 @@ type jacobiCG struct {
 	ws      *workers
 	slabs   [][]span
 	r, p, q []float64
+	invDiag []float64 // the Jacobi preconditioner, 1/diag
 	sums    []partial
 
 	// operands of the running solve, read by the tasks
@@ -106,7 +107,8 @@ func newJacobiCG(ws *workers, slabs [][]span, size int) *jacobiCG {
 	s := &jacobiCG{
 		ws: ws, slabs: slabs,
 		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
-		sums: make([]partial, ws.count()),
+		invDiag: make([]float64, size),
+		sums:    make([]partial, ws.count()),
 	}
 	s.startTask = s.start
 	s.productTask = s.product
@@ -178,7 +180,8 @@ func (s *jacobiCG) start(w int) {
 				a.gz[c]*x[c+nxy] - a.gz[c-nxy]*x[c-nxy]
 			rc := b[c] - ax
 			r[c] = rc
-			z := rc / a.diag[c]
+			s.invDiag[c] = 1 / a.diag[c]
+			z := rc * s.invDiag[c]
 			p[c] = z
 			rz += rc * z
 			bb += b[c] * b[c]
@@ -207,15 +210,17 @@ func (s *jacobiCG) product(w int) {
 
 // update steps x and r along p; sums r·r/diag and r·r.
 func (s *jacobiCG) update(w int) {
-	x, r, p, q, d := s.x, s.r, s.p, s.q, s.a.diag
 	alpha := s.alpha
 	var rz, rr float64
 	for _, sp := range s.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
-			x[c] += alpha * p[c]
-			rc := r[c] - alpha*q[c]
-			r[c] = rc
-			rz += rc * rc / d[c]
+		// Equal-length reslices let the compiler drop the bounds checks.
+		n := sp.hi - sp.lo
+		x, r, p, q, inv := s.x[sp.lo:sp.hi], s.r[sp.lo:sp.hi:sp.lo+n], s.p[sp.lo:sp.hi], s.q[sp.lo:sp.hi], s.invDiag[sp.lo:sp.hi]
+		for i := range r {
+			x[i] += alpha * p[i]
+			rc := r[i] - alpha*q[i]
+			r[i] = rc
+			rz += rc * rc * inv[i]
 			rr += rc * rc
 		}
 	}
@@ -224,11 +229,11 @@ func (s *jacobiCG) update(w int) {
 
 // direction sets p = r/diag + β·p.
 func (s *jacobiCG) direction(w int) {
-	r, p, d := s.r, s.p, s.a.diag
 	beta := s.beta
 	for _, sp := range s.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
-			p[c] = r[c]/d[c] + beta*p[c]
+		r, p, inv := s.r[sp.lo:sp.hi], s.p[sp.lo:sp.hi], s.invDiag[sp.lo:sp.hi]
+		for i := range r {
+			p[i] = r[i]*inv[i] + beta*p[i]
 		}
 	}
 }

@@ -29,7 +29,10 @@ func TestValidate(t *testing.T) {
 			p.Materials[0].SpecificHeat = Curve{T: []float64{300, 900, 800}, V: []float64{460, 600, 700}}
 			return p
 		}, "materials[0].specific_heat.t[2]: temperatures must increase, got 800 after 900"},
-		{"curve lengths", func(p *Problem) *Problem { p.Materials[0].Conductivity = Curve{T: []float64{1, 2}, V: []float64{1}}; return p }, "materials[0].conductivity: needs as many"},
+		{"curve lengths", func(p *Problem) *Problem {
+			p.Materials[0].Conductivity = Curve{T: []float64{1, 2}, V: []float64{1}}
+			return p
+		}, "materials[0].conductivity: needs as many"},
 		{"exposures length", func(p *Problem) *Problem { p.Exposures = p.Exposures[:1]; return p }, "exposures: 1 given for 2 surface groups"},
 		{"emissivity", func(p *Problem) *Problem { p.Exposures[0].Phases[0].Emissivity = 1.4; return p }, "exposures[0].phases[0].emissivity: must be in [0, 1], got 1.4"},
 		{"phase order", func(p *Problem) *Problem {

@@ -266,3 +266,26 @@ func TestCancel(t *testing.T) {
 		t.Errorf("linear solve after cancel: %d iterations, error %v", iterations, err)
 	}
 }
+
+// TestThreadsAgree: splitting the grid into slabs must not change the
+// answer beyond the linear solver's tolerance.
+func TestThreadsAgree(t *testing.T) {
+	t.Parallel()
+	var finals [2][]float64
+	for i, threads := range []int{1, 2} {
+		p := problemFor(testGrid(block3(24)), constantMaterial(40, 7800, 460), convection(300, 300), 1000, 120)
+		p.Threads = threads
+		_, err := Solve(context.Background(), p, func(s *State) bool {
+			finals[i] = append(finals[i][:0], s.T...)
+			return false
+		})
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	for c := range finals[0] {
+		if d := math.Abs(finals[0][c] - finals[1][c]); d > 1e-5 {
+			t.Fatalf("cell %d: %.9f K on one thread, %.9f K on two", c, finals[0][c], finals[1][c])
+		}
+	}
+}

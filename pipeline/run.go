@@ -10,10 +10,12 @@ import (
 
 	"google.golang.org/protobuf/types/known/wrapperspb"
 
+	"soakfarm/estimate"
 	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
 	"soakfarm/report"
 	"soakfarm/solver"
+	"soakfarm/verify"
 )
 
 // Stop reasons written to the summary.
@@ -21,6 +23,10 @@ const (
 	StopEndTime    = "end-time"
 	StopMilestones = "milestones-reached"
 )
+
+// VerdictNotChecked is the verdict of a result whose verification could
+// not run (the reason says why).
+const VerdictNotChecked = "not-checked"
 
 // milestoneWatch follows one milestone from step to step.
 type milestoneWatch struct {
@@ -65,7 +71,7 @@ func Build(ctx context.Context, spec *soakv1.JobSpec, threads int) (*Model, erro
 		return nil, fmt.Errorf("mesh: %w", err)
 	}
 	m := &Model{Spec: spec, Solid: solid, Grid: g}
-	mat := material(spec.GetMaterial())
+	mat := estimate.MaterialFromSpec(spec.GetMaterial())
 	initial := kelvin(spec.GetInitialC())
 	ex := exposures(spec, g)
 	st := spec.GetTimeStepping()
@@ -199,6 +205,27 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 		return nil, err
 	}
 	sum := m.summary(rows[len(rows)-1], watches, out, stopReason)
+	v, err := verify.Run(ctx, verify.Input{
+		Spec: spec, Solid: m.Solid, CellSize: g.CellSize, Material: prob.Materials[0],
+		Milestones: sum.GetMilestones(), EnergyImbalance: out.EnergyImbalance, EndTime: out.EndTime,
+		Threads: opt.Threads,
+	})
+	switch {
+	case ctx.Err() != nil:
+		return nil, fmt.Errorf("verify: %w", ctx.Err())
+	case err != nil:
+		// The result stands; say plainly that it went unchecked.
+		v = &soakv1.Verification{Verdict: VerdictNotChecked, Reasons: []string{err.Error()}}
+	default:
+		if err := verify.WritePlot(outDir, v); err != nil {
+			return nil, err
+		}
+		artifacts = append(artifacts, verify.PlotFile)
+	}
+	sum.Verification = v
+	if h := v.GetEstimate(); h != nil {
+		sum.BiotNumber, sum.CharacteristicLengthM, sum.TimeConstantS = h.GetBiotNumber(), h.GetCharacteristicLengthM(), h.GetTimeConstantS()
+	}
 	sum.Artifacts = artifacts
 	sum.WallSeconds = time.Since(started).Seconds()
 	if err := report.WriteSummary(outDir, sum); err != nil {
@@ -328,9 +355,6 @@ func (m *Model) summary(last report.Row, watches []*milestoneWatch, out *solver.
 	for i, p := range m.probes {
 		s.FinalProbes = append(s.FinalProbes, &soakv1.ProbeReading{Name: p.name, TempC: last.Probes[i], Placement: p.placement})
 	}
-	// Biot number and time constant from the true geometry, the
-	// area-weighted convective coefficient and properties at the start.
-	var hA, exposedArea float64
 	for _, grp := range g.Groups {
 		gs := &soakv1.SurfaceGroupSummary{Name: grp.Name, TrueAreaM2: grp.TrueArea, VoxelAreaM2: grp.VoxelArea, ModelAreaM2: grp.ModelArea}
 		if grp.Exposure >= 0 {
@@ -338,22 +362,8 @@ func (m *Model) summary(last report.Row, watches []*milestoneWatch, out *solver.
 			gs.HWM2K = e.GetHWM2K()
 			gs.FluidC = e.FluidC
 			gs.Emissivity = e.Emissivity
-			hA += e.GetHWM2K() * grp.TrueArea
-			exposedArea += grp.TrueArea
 		}
 		s.SurfaceGroups = append(s.SurfaceGroups, gs)
-	}
-	mat := prob.Materials[0]
-	k := mat.Conductivity.At(prob.Initial)
-	cp := mat.SpecificHeat.At(prob.Initial)
-	if exposedArea > 0 {
-		lc := s.TrueVolumeM3 / exposedArea
-		h := hA / exposedArea
-		s.CharacteristicLengthM = lc
-		s.BiotNumber = h * lc / k
-		if h > 0 {
-			s.TimeConstantS = mat.Density * cp * lc / h
-		}
 	}
 	s.EnergyImbalance = finiteOr(s.EnergyImbalance, 0)
 	return s

@@ -14,27 +14,6 @@ const ZeroCelsius = 273.15
 func kelvin(c float64) float64  { return c + ZeroCelsius }
 func celsius(k float64) float64 { return k - ZeroCelsius }
 
-// curve converts a constant or a table in deg C into a solver curve in kelvin.
-func curve(constant *float64, table []*soakv1.TablePoint) solver.Curve {
-	if constant != nil {
-		return solver.Constant(*constant)
-	}
-	c := solver.Curve{}
-	for _, p := range table {
-		c.T = append(c.T, kelvin(p.GetTempC()))
-		c.V = append(c.V, p.GetValue())
-	}
-	return c
-}
-
-func material(m *soakv1.Material) solver.Material {
-	return solver.Material{
-		Density:      m.GetDensityKgM3(),
-		Conductivity: curve(m.ConductivityWMk, m.GetConductivityTable()),
-		SpecificHeat: curve(m.SpecificHeatJKgk, m.GetSpecificHeatTable()),
-	}
-}
-
 // exposures gives each surface group of g its exposure history.
 func exposures(spec *soakv1.JobSpec, g *mesh.Grid) []solver.Exposure {
 	out := make([]solver.Exposure, len(g.Groups))

@@ -16,6 +16,7 @@ import (
 	"soakfarm/pipeline"
 	soakv1 "soakfarm/proto/soak/v1"
 	"soakfarm/report"
+	"soakfarm/verify"
 )
 
 func newRunCmd(s streams) *cobra.Command {
@@ -137,6 +138,14 @@ func printSummary(w io.Writer, s *soakv1.Summary, dir string) {
 	if dir != "" {
 		fmt.Fprintf(w, "  files in %s: %s\n", dir, strings.Join(s.GetArtifacts(), ", "))
 		fmt.Fprintf(w, "  plot: %s\n", filepath.Join(dir, report.HistoryFile))
+	}
+	if v := s.GetVerification(); v.GetEstimate() != nil {
+		fmt.Fprintln(w)
+		if err := verify.WriteText(w, v); err != nil {
+			fmt.Fprintf(w, "  (verification not shown: %v)\n", err)
+		}
+	} else if v != nil {
+		fmt.Fprintf(w, "  verification: %s (%s)\n", v.GetVerdict(), strings.Join(v.GetReasons(), "; "))
 	}
 	fmt.Fprintf(w, "CAUTION: %s\n", s.GetCaution())
 }

@@ -47,7 +47,7 @@ type Config struct {
 	// RetryDelay is how long a failed job waits before its next attempt,
 	// times the attempt number; default 2 s.
 	RetryDelay time.Duration
-	Logger           *slog.Logger
+	Logger     *slog.Logger
 }
 
 // Worker runs jobs from the queue.
@@ -70,8 +70,7 @@ var (
 // New returns a worker that takes jobs through nc once Run is called.
 func New(nc *nats.Conn, cfg Config) *Worker {
 	if cfg.Name == "" {
-		host, _ := os.Hostname()
-		cfg.Name = fmt.Sprintf("%s-%d", host, os.Getpid())
+		cfg.Name = DefaultName()
 	}
 	if cfg.Concurrency <= 0 {
 		cfg.Concurrency = 1
@@ -99,6 +98,12 @@ func New(nc *nats.Conn, cfg Config) *Worker {
 		log:     cfg.Logger.With("worker", cfg.Name),
 		running: make(map[string]context.CancelCauseFunc),
 	}
+}
+
+// DefaultName names a worker by its host and process id.
+func DefaultName() string {
+	host, _ := os.Hostname()
+	return fmt.Sprintf("%s-%d", host, os.Getpid())
 }
 
 // Name is the worker's name in job records.

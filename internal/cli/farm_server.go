@@ -1,0 +1,377 @@
+package cli
+
+import (
+	"context"
+	"crypto/tls"
+	"crypto/x509"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"os"
+	"time"
+
+	"github.com/nats-io/nats.go"
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+	"google.golang.org/grpc/credentials"
+
+	"soakfarm/internal/localfarm"
+	"soakfarm/scheduler"
+	"soakfarm/scheduler/store"
+	"soakfarm/worker"
+)
+
+// natsPasswordEnv holds the NATS password when --nats-password is not
+// given, keeping it off the command line.
+const natsPasswordEnv = "SOAK_NATS_PASSWORD"
+
+// shutdownGrace is how long the farm's processes give calls in flight and
+// jobs being handed back when they are told to stop.
+const shutdownGrace = 20 * time.Second
+
+// queueFlags set the farm-wide queue settings a scheduler applies.
+type queueFlags struct {
+	ackWait     time.Duration
+	maxAttempts int
+}
+
+func (q *queueFlags) register(f *pflag.FlagSet) {
+	d := store.DefaultSettings()
+	f.DurationVar(&q.ackWait, "ack-wait", d.AckWait, "time a worker may go silent before its job goes to another worker")
+	f.IntVar(&q.maxAttempts, "max-attempts", d.MaxDeliver, "times a job is handed to a worker before it fails")
+}
+
+func (q *queueFlags) settings() (store.Settings, error) {
+	s := store.DefaultSettings()
+	if q.ackWait < time.Second {
+		return s, fmt.Errorf("--ack-wait: must be at least 1s, got %s", q.ackWait)
+	}
+	if q.maxAttempts < 1 {
+		return s, fmt.Errorf("--max-attempts: must be at least 1, got %d", q.maxAttempts)
+	}
+	s.AckWait, s.MaxDeliver = q.ackWait, q.maxAttempts
+	return s, nil
+}
+
+// apiFlags secure the gRPC API.
+type apiFlags struct {
+	listen           string
+	tlsCert, tlsKey  string
+	token            string // from $SOAK_FARM_TOKEN
+	beyondLoopbackOK bool
+}
+
+func (a *apiFlags) register(f *pflag.FlagSet) {
+	f.StringVar(&a.listen, "listen", defaultFarmAddr, "address of the gRPC API, host:port")
+	f.StringVar(&a.tlsCert, "tls-cert", "", "serve the API over TLS with this certificate (PEM)")
+	f.StringVar(&a.tlsKey, "tls-key", "", "private key of --tls-cert (PEM)")
+}
+
+// load reads the token and TLS files. Beyond loopback the API needs both a
+// token and TLS, unless allowPlain (the scheduler in a container, whose
+// port is published on the host's loopback).
+func (a *apiFlags) load(allowPlain bool) (credentials.TransportCredentials, error) {
+	a.token = os.Getenv(farmTokenEnv)
+	var creds credentials.TransportCredentials
+	if a.tlsCert != "" || a.tlsKey != "" {
+		if a.tlsCert == "" || a.tlsKey == "" {
+			return nil, errors.New("--tls-cert and --tls-key: give both or neither")
+		}
+		c, err := credentials.NewServerTLSFromFile(a.tlsCert, a.tlsKey)
+		if err != nil {
+			return nil, fmt.Errorf("--tls-cert/--tls-key: %w", err)
+		}
+		creds = c
+	}
+	loopback, err := isLoopbackAddr(a.listen)
+	if err != nil {
+		return nil, fmt.Errorf("--listen: %w", err)
+	}
+	a.beyondLoopbackOK = loopback || (a.token != "" && creds != nil)
+	if !a.beyondLoopbackOK && !allowPlain {
+		return nil, fmt.Errorf("--listen %s is reachable from other machines; that needs a bearer token in $%s and --tls-cert/--tls-key", a.listen, farmTokenEnv)
+	}
+	return creds, nil
+}
+
+// isLoopbackAddr reports whether host:port only listens on this machine.
+func isLoopbackAddr(addr string) (bool, error) {
+	host, _, err := net.SplitHostPort(addr)
+	if err != nil {
+		return false, fmt.Errorf("want host:port, got %q", addr)
+	}
+	if host == "localhost" {
+		return true, nil
+	}
+	ip := net.ParseIP(host)
+	return ip != nil && ip.IsLoopback(), nil
+}
+
+// natsFlags are how a process reaches the farm's NATS server.
+type natsFlags struct {
+	url                    string
+	user, password, creds  string
+	tlsCA, tlsCert, tlsKey string
+}
+
+func (n *natsFlags) register(f *pflag.FlagSet) {
+	f.StringVar(&n.url, "nats", nats.DefaultURL, "NATS server URL(s) of the farm, comma-separated")
+	f.StringVar(&n.user, "nats-user", "", "NATS user name")
+	f.StringVar(&n.password, "nats-password", "", "NATS password (default $"+natsPasswordEnv+")")
+	f.StringVar(&n.creds, "nats-creds", "", "NATS credentials file (user JWT and seed)")
+	f.StringVar(&n.tlsCA, "nats-tls-ca", "", "CA certificate (PEM) to verify the NATS server with")
+	f.StringVar(&n.tlsCert, "nats-tls-cert", "", "client certificate (PEM) for NATS")
+	f.StringVar(&n.tlsKey, "nats-tls-key", "", "private key of --nats-tls-cert (PEM)")
+}
+
+func (n *natsFlags) connect(name string, log *slog.Logger) (*nats.Conn, error) {
+	opts := []nats.Option{
+		nats.Name(name),
+		// A long-lived farm process rides out NATS restarts.
+		nats.MaxReconnects(-1),
+		nats.ReconnectWait(time.Second),
+		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
+			log.Warn("NATS disconnected", "err", err)
+		}),
+		nats.ReconnectHandler(func(c *nats.Conn) { log.Info("NATS reconnected", "url", c.ConnectedUrl()) }),
+	}
+	password := n.password
+	if password == "" {
+		password = os.Getenv(natsPasswordEnv)
+	}
+	if n.user != "" {
+		opts = append(opts, nats.UserInfo(n.user, password))
+	}
+	if n.creds != "" {
+		opts = append(opts, nats.UserCredentials(n.creds))
+	}
+	if n.tlsCA != "" || n.tlsCert != "" || n.tlsKey != "" {
+		cfg, err := n.tlsConfig()
+		if err != nil {
+			return nil, err
+		}
+		opts = append(opts, nats.Secure(cfg))
+	}
+	nc, err := nats.Connect(n.url, opts...)
+	if err != nil {
+		return nil, fmt.Errorf("connect to NATS at %s: %w", n.url, err)
+	}
+	return nc, nil
+}
+
+func (n *natsFlags) tlsConfig() (*tls.Config, error) {
+	cfg := &tls.Config{MinVersion: tls.VersionTLS12}
+	if n.tlsCA != "" {
+		pem, err := os.ReadFile(n.tlsCA)
+		if err != nil {
+			return nil, fmt.Errorf("--nats-tls-ca: %w", err)
+		}
+		pool := x509.NewCertPool()
+		if !pool.AppendCertsFromPEM(pem) {
+			return nil, fmt.Errorf("--nats-tls-ca: no PEM certificate in %s", n.tlsCA)
+		}
+		cfg.RootCAs = pool
+	}
+	if n.tlsCert != "" || n.tlsKey != "" {
+		if n.tlsCert == "" || n.tlsKey == "" {
+			return nil, errors.New("--nats-tls-cert and --nats-tls-key: give both or neither")
+		}
+		cert, err := tls.LoadX509KeyPair(n.tlsCert, n.tlsKey)
+		if err != nil {
+			return nil, fmt.Errorf("--nats-tls-cert/--nats-tls-key: %w", err)
+		}
+		cfg.Certificates = []tls.Certificate{cert}
+	}
+	return cfg, nil
+}
+
+func serverLogger(s streams) *slog.Logger {
+	return slog.New(slog.NewTextHandler(s.err, &slog.HandlerOptions{Level: slog.LevelInfo}))
+}
+
+// closeWithGrace runs close with shutdownGrace to finish.
+func closeWithGrace(close func(context.Context) error) error {
+	ctx, cancel := context.WithTimeout(context.Background(), shutdownGrace)
+	defer cancel()
+	return close(ctx)
+}
+
+func newServeCmd(s streams) *cobra.Command {
+	var (
+		dataDir      string
+		natsListen   string
+		natsUser     string
+		natsPassword string
+		workers      int
+		concurrency  int
+		api          apiFlags
+		queue        queueFlags
+	)
+	cmd := &cobra.Command{
+		Use:   "serve",
+		Short: "Run a whole farm in this process: NATS, the scheduler's API and local workers",
+		Long: "Runs an embedded NATS server with JetStream (state kept under --data), the farm's gRPC API on\n" +
+			"--listen and --workers local workers. Remote workers join through --nats-listen.\n" +
+			"Stops on interrupt, handing running jobs back to the queue.",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			log := serverLogger(s)
+			creds, err := api.load(false)
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			settings, err := queue.settings()
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			if workers < 0 || concurrency < 1 {
+				return withCode(ExitUsage, fmt.Errorf("--workers must be ≥ 0 and --concurrency ≥ 1, got %d and %d", workers, concurrency))
+			}
+			if natsPassword == "" {
+				natsPassword = os.Getenv(natsPasswordEnv)
+			}
+			if natsListen != "" {
+				loopback, err := isLoopbackAddr(natsListen)
+				if err != nil {
+					return withCode(ExitUsage, fmt.Errorf("--nats-listen: %w", err))
+				}
+				if !loopback && (natsUser == "" || natsPassword == "") {
+					return withCode(ExitUsage, fmt.Errorf("--nats-listen %s is reachable from other machines; that needs --nats-user and --nats-password (or $%s)", natsListen, natsPasswordEnv))
+				}
+			}
+			farm, err := localfarm.Start(cmd.Context(), localfarm.Config{
+				DataDir: dataDir, GRPCListen: api.listen, NATSListen: natsListen,
+				NATSUser: natsUser, NATSPassword: natsPassword,
+				Workers: workers, WorkerConcurrency: concurrency, Settings: settings,
+				Token: api.token, TLS: creds, Logger: log,
+			})
+			if err != nil {
+				return withCode(ExitFailure, err)
+			}
+			fmt.Fprintf(s.out, "farm API on %s\n", farm.GRPCAddr())
+			if url := farm.NATSURL(); url != "" {
+				fmt.Fprintf(s.out, "NATS for remote workers on %s\n", url)
+			}
+			if loopback, _ := isLoopbackAddr(api.listen); loopback {
+				fmt.Fprintln(s.out, "serving loopback only: other machines cannot reach this farm's API")
+			}
+			fmt.Fprintf(s.out, "farm state in %s; %d local worker(s); interrupt to stop\n", dataDir, workers)
+			<-cmd.Context().Done()
+			log.Info("stopping the farm")
+			if err := closeWithGrace(farm.Close); err != nil {
+				return withCode(ExitFailure, err)
+			}
+			return nil
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&dataDir, "data", "soak-data", "folder of the farm's state (jobs, events, result files)")
+	api.register(f)
+	f.StringVar(&natsListen, "nats-listen", "", "also let remote workers reach NATS at host:port (default: in-process only)")
+	f.StringVar(&natsUser, "nats-user", "", "NATS user name remote workers must give")
+	f.StringVar(&natsPassword, "nats-password", "", "NATS password remote workers must give (default $"+natsPasswordEnv+")")
+	f.IntVar(&workers, "workers", 1, "local workers")
+	f.IntVar(&concurrency, "concurrency", 1, "jobs each local worker runs at once")
+	queue.register(f)
+	return cmd
+}
+
+func newSchedulerCmd(s streams) *cobra.Command {
+	var (
+		conn  natsFlags
+		api   apiFlags
+		queue queueFlags
+	)
+	cmd := &cobra.Command{
+		Use:   "scheduler",
+		Short: "Serve the farm's gRPC API on a NATS JetStream server",
+		Long: "Sets up the farm's streams and buckets on the NATS server and serves the gRPC API.\n" +
+			"Holds no state of its own: stop, restart or run several at will.",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			log := serverLogger(s)
+			// In a container the API listens on all interfaces and the
+			// host publishes the port; warn rather than refuse.
+			creds, err := api.load(true)
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			if !api.beyondLoopbackOK {
+				log.Warn("API reachable beyond loopback without token and TLS; publish its port on loopback only", "listen", api.listen)
+			}
+			settings, err := queue.settings()
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			nc, err := conn.connect("soak-scheduler", log)
+			if err != nil {
+				return withCode(ExitFailure, err)
+			}
+			defer nc.Close()
+			lis, err := net.Listen("tcp", api.listen)
+			if err != nil {
+				return withCode(ExitFailure, fmt.Errorf("--listen: %w", err))
+			}
+			srv, err := scheduler.Start(cmd.Context(), nc, lis, scheduler.Config{
+				Settings: settings, Token: api.token, TLS: creds, Logger: log,
+			})
+			if err != nil {
+				lis.Close()
+				return withCode(ExitFailure, err)
+			}
+			fmt.Fprintf(s.out, "farm API on %s\n", srv.Addr())
+			<-cmd.Context().Done()
+			if err := closeWithGrace(srv.Close); err != nil {
+				return withCode(ExitFailure, err)
+			}
+			return nil
+		},
+	}
+	conn.register(cmd.Flags())
+	api.register(cmd.Flags())
+	queue.register(cmd.Flags())
+	return cmd
+}
+
+func newWorkerCmd(s streams) *cobra.Command {
+	var (
+		conn    natsFlags
+		cfg     worker.Config
+		workDir string
+	)
+	cmd := &cobra.Command{
+		Use:   "worker",
+		Short: "Compute the farm's jobs on this machine",
+		Long: "Takes jobs from the farm's queue on the NATS server, computes them and uploads the results.\n" +
+			"On interrupt it hands running jobs back to the queue and exits.",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			log := serverLogger(s)
+			if cfg.Concurrency < 1 {
+				return withCode(ExitUsage, fmt.Errorf("--concurrency: must be at least 1, got %d", cfg.Concurrency))
+			}
+			cfg.WorkDir = workDir
+			cfg.Logger = log
+			if cfg.Name == "" {
+				cfg.Name = worker.DefaultName()
+			}
+			nc, err := conn.connect("soak-worker "+cfg.Name, log)
+			if err != nil {
+				return withCode(ExitFailure, err)
+			}
+			defer nc.Close()
+			if err := worker.New(nc, cfg).Run(cmd.Context()); err != nil {
+				return withCode(ExitFailure, err)
+			}
+			return nil
+		},
+	}
+	conn.register(cmd.Flags())
+	f := cmd.Flags()
+	f.IntVar(&cfg.Concurrency, "concurrency", 1, "jobs computed at once")
+	f.StringVar(&cfg.Name, "name", "", "worker name shown in job records (default host-pid)")
+	f.IntVar(&cfg.Threads, "threads", 0, "solver threads per job (default: cores / concurrency)")
+	f.StringVar(&workDir, "work-dir", "", "folder for result files before upload (default: system temporary folder)")
+	return cmd
+}

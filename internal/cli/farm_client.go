@@ -358,11 +358,10 @@ func fetchJob(ctx context.Context, c *farmclient.Client, id, dir string) (*soakv
 
 // outcome is how a watched job ended.
 type outcome struct {
-	id, name   string
-	state      soakv1.JobState
-	reason     string
-	summary    *soakv1.Summary
-	milestones []*soakv1.MilestoneReached
+	id, name string
+	state    soakv1.JobState
+	reason   string
+	summary  *soakv1.Summary
 }
 
 // followJobs watches the jobs at once, drawing their progress on w, until
@@ -397,8 +396,6 @@ func followJobs(ctx context.Context, c *farmclient.Client, w io.Writer, jobs []*
 
 func recordEvent(o *outcome, ev *soakv1.JobEvent) {
 	switch k := ev.GetKind().(type) {
-	case *soakv1.JobEvent_Milestone:
-		o.milestones = append(o.milestones, k.Milestone)
 	case *soakv1.JobEvent_Finished:
 		o.state, o.summary = soakv1.JobState_JOB_STATE_FINISHED, k.Finished.GetSummary()
 	case *soakv1.JobEvent_Failed:

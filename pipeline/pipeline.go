@@ -19,6 +19,10 @@ type Options struct {
 	Milestone func(*soakv1.MilestoneReached)
 	// Threads bounds the solver's goroutines; 0 uses every core.
 	Threads int
+
+	// skipChecks leaves out the verification, for the pipeline's own
+	// second solve when refining.
+	skipChecks bool
 }
 
 // Run computes spec and writes its result files into outDir (created if

@@ -205,6 +205,10 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 		return nil, err
 	}
 	sum := m.summary(rows[len(rows)-1], watches, out, stopReason)
+	if opt.skipChecks {
+		sum.Artifacts = artifacts
+		return sum, nil
+	}
 	v, err := verify.Run(ctx, verify.Input{
 		Spec: spec, Solid: m.Solid, CellSize: g.CellSize, Material: prob.Materials[0],
 		Milestones: sum.GetMilestones(), EnergyImbalance: out.EnergyImbalance, EndTime: out.EndTime,
@@ -225,6 +229,13 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 	sum.Verification = v
 	if h := v.GetEstimate(); h != nil {
 		sum.BiotNumber, sum.CharacteristicLengthM, sum.TimeConstantS = h.GetBiotNumber(), h.GetCharacteristicLengthM(), h.GetTimeConstantS()
+	}
+	if spec.GetRefine() {
+		r, err := refine(ctx, spec, g.CellSize, sum, opt)
+		if err != nil {
+			return nil, err
+		}
+		sum.Refinement = r
 	}
 	sum.Artifacts = artifacts
 	sum.WallSeconds = time.Since(started).Seconds()

@@ -139,6 +139,22 @@ func printSummary(w io.Writer, s *soakv1.Summary, dir string) {
 		fmt.Fprintf(w, "  files in %s: %s\n", dir, strings.Join(s.GetArtifacts(), ", "))
 		fmt.Fprintf(w, "  plot: %s\n", filepath.Join(dir, report.HistoryFile))
 	}
+	if r := s.GetRefinement(); r != nil {
+		fmt.Fprintf(w, "  refinement to %.4g m cells (Richardson, order %g, safety factor %g, %.1f s):\n", r.GetFineCellSizeM(), r.GetOrder(), r.GetSafetyFactor(), r.GetWallSeconds())
+		for _, v := range r.GetMilestones() {
+			if v.GetAvailable() {
+				fmt.Fprintf(w, "    milestone %-20s %10.1f ± %.1f s (job %.1f s, fine %.1f s)\n", v.GetName(), v.GetExtrapolated(), v.GetErrorBand(), v.GetCoarse(), v.GetFine())
+			} else {
+				fmt.Fprintf(w, "    milestone %-20s not reached on every grid\n", v.GetName())
+			}
+		}
+		for _, v := range r.GetProbes() {
+			fmt.Fprintf(w, "    probe     %-20s %10.2f ± %.2f °C (job %.2f, fine %.2f)\n", v.GetName(), v.GetExtrapolated(), v.GetErrorBand(), v.GetCoarse(), v.GetFine())
+		}
+		for _, n := range r.GetNotes() {
+			fmt.Fprintf(w, "    note: %s\n", n)
+		}
+	}
 	if v := s.GetVerification(); v.GetEstimate() != nil {
 		fmt.Fprintln(w)
 		if err := verify.WriteText(w, v); err != nil {

@@ -60,7 +60,9 @@ type Summary struct {
 	Artifacts           []string     `protobuf:"bytes,23,rep,name=artifacts,proto3" json:"artifacts,omitempty"`
 	// How far to trust this result: hand estimates, a cross-check of the
 	// solver against exact solutions at the job's resolution, and a verdict.
-	Verification  *Verification `protobuf:"bytes,24,opt,name=verification,proto3" json:"verification,omitempty"`
+	Verification *Verification `protobuf:"bytes,24,opt,name=verification,proto3" json:"verification,omitempty"`
+	// Present when the spec asked to refine.
+	Refinement    *Refinement `protobuf:"bytes,40,opt,name=refinement,proto3" json:"refinement,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -259,6 +261,13 @@ func (x *Summary) GetArtifacts() []string {
 func (x *Summary) GetVerification() *Verification {
 	if x != nil {
 		return x.Verification
+	}
+	return nil
+}
+
+func (x *Summary) GetRefinement() *Refinement {
+	if x != nil {
+		return x.Refinement
 	}
 	return nil
 }
@@ -1325,11 +1334,206 @@ func (x *CrossCheckSample) GetEnergyFractionExact() float64 {
 	return 0
 }
 
+// Refinement compares the job with a second solve at half the cell size
+// and extrapolates to zero cell size (Richardson), with an error band from
+// the grid convergence index.
+type Refinement struct {
+	state         protoimpl.MessageState `protogen:"open.v1"`
+	CellSizeM     float64                `protobuf:"fixed64,1,opt,name=cell_size_m,json=cellSizeM,proto3" json:"cell_size_m,omitempty"`
+	FineCellSizeM float64                `protobuf:"fixed64,2,opt,name=fine_cell_size_m,json=fineCellSizeM,proto3" json:"fine_cell_size_m,omitempty"`
+	// Order of accuracy assumed for the extrapolation (the scheme's spatial
+	// order).
+	Order float64 `protobuf:"fixed64,3,opt,name=order,proto3" json:"order,omitempty"`
+	// Safety factor of the error band.
+	SafetyFactor  float64         `protobuf:"fixed64,4,opt,name=safety_factor,json=safetyFactor,proto3" json:"safety_factor,omitempty"`
+	Milestones    []*RefinedValue `protobuf:"bytes,5,rep,name=milestones,proto3" json:"milestones,omitempty"`
+	Probes        []*RefinedValue `protobuf:"bytes,6,rep,name=probes,proto3" json:"probes,omitempty"`
+	WallSeconds   float64         `protobuf:"fixed64,7,opt,name=wall_seconds,json=wallSeconds,proto3" json:"wall_seconds,omitempty"`
+	Notes         []string        `protobuf:"bytes,8,rep,name=notes,proto3" json:"notes,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Refinement) Reset() {
+	*x = Refinement{}
+	mi := &file_soak_v1_result_proto_msgTypes[12]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Refinement) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Refinement) ProtoMessage() {}
+
+func (x *Refinement) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[12]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Refinement.ProtoReflect.Descriptor instead.
+func (*Refinement) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{12}
+}
+
+func (x *Refinement) GetCellSizeM() float64 {
+	if x != nil {
+		return x.CellSizeM
+	}
+	return 0
+}
+
+func (x *Refinement) GetFineCellSizeM() float64 {
+	if x != nil {
+		return x.FineCellSizeM
+	}
+	return 0
+}
+
+func (x *Refinement) GetOrder() float64 {
+	if x != nil {
+		return x.Order
+	}
+	return 0
+}
+
+func (x *Refinement) GetSafetyFactor() float64 {
+	if x != nil {
+		return x.SafetyFactor
+	}
+	return 0
+}
+
+func (x *Refinement) GetMilestones() []*RefinedValue {
+	if x != nil {
+		return x.Milestones
+	}
+	return nil
+}
+
+func (x *Refinement) GetProbes() []*RefinedValue {
+	if x != nil {
+		return x.Probes
+	}
+	return nil
+}
+
+func (x *Refinement) GetWallSeconds() float64 {
+	if x != nil {
+		return x.WallSeconds
+	}
+	return 0
+}
+
+func (x *Refinement) GetNotes() []string {
+	if x != nil {
+		return x.Notes
+	}
+	return nil
+}
+
+// RefinedValue is one milestone time (s) or final probe value (deg C) at
+// both cell sizes, extrapolated, with the band that should hold the
+// grid-independent answer.
+type RefinedValue struct {
+	state        protoimpl.MessageState `protogen:"open.v1"`
+	Name         string                 `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
+	Coarse       float64                `protobuf:"fixed64,2,opt,name=coarse,proto3" json:"coarse,omitempty"`
+	Fine         float64                `protobuf:"fixed64,3,opt,name=fine,proto3" json:"fine,omitempty"`
+	Extrapolated float64                `protobuf:"fixed64,4,opt,name=extrapolated,proto3" json:"extrapolated,omitempty"`
+	// Half-width of the band around extrapolated.
+	ErrorBand float64 `protobuf:"fixed64,5,opt,name=error_band,json=errorBand,proto3" json:"error_band,omitempty"`
+	// False when a milestone was not reached on both grids.
+	Available     bool `protobuf:"varint,6,opt,name=available,proto3" json:"available,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RefinedValue) Reset() {
+	*x = RefinedValue{}
+	mi := &file_soak_v1_result_proto_msgTypes[13]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RefinedValue) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RefinedValue) ProtoMessage() {}
+
+func (x *RefinedValue) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[13]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RefinedValue.ProtoReflect.Descriptor instead.
+func (*RefinedValue) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{13}
+}
+
+func (x *RefinedValue) GetName() string {
+	if x != nil {
+		return x.Name
+	}
+	return ""
+}
+
+func (x *RefinedValue) GetCoarse() float64 {
+	if x != nil {
+		return x.Coarse
+	}
+	return 0
+}
+
+func (x *RefinedValue) GetFine() float64 {
+	if x != nil {
+		return x.Fine
+	}
+	return 0
+}
+
+func (x *RefinedValue) GetExtrapolated() float64 {
+	if x != nil {
+		return x.Extrapolated
+	}
+	return 0
+}
+
+func (x *RefinedValue) GetErrorBand() float64 {
+	if x != nil {
+		return x.ErrorBand
+	}
+	return 0
+}
+
+func (x *RefinedValue) GetAvailable() bool {
+	if x != nil {
+		return x.Available
+	}
+	return false
+}
+
 var File_soak_v1_result_proto protoreflect.FileDescriptor
 
 const file_soak_v1_result_proto_rawDesc = "" +
 	"\n" +
-	"\x14soak/v1/result.proto\x12\asoak.v1\x1a\x1egoogle/protobuf/wrappers.proto\"\xc0\a\n" +
+	"\x14soak/v1/result.proto\x12\asoak.v1\x1a\x1egoogle/protobuf/wrappers.proto\"\xf5\a\n" +
 	"\aSummary\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x18\n" +
 	"\acaution\x18\x02 \x01(\tR\acaution\x12\x1f\n" +
@@ -1361,7 +1565,10 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\x06scheme\x18\x15 \x01(\tR\x06scheme\x12!\n" +
 	"\fwall_seconds\x18\x16 \x01(\x01R\vwallSeconds\x12\x1c\n" +
 	"\tartifacts\x18\x17 \x03(\tR\tartifacts\x129\n" +
-	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\"Z\n" +
+	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\x123\n" +
+	"\n" +
+	"refinement\x18( \x01(\v2\x13.soak.v1.RefinementR\n" +
+	"refinement\"Z\n" +
 	"\x0fMilestoneResult\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x123\n" +
 	"\x06time_s\x18\x02 \x01(\v2\x1c.google.protobuf.DoubleValueR\x05timeS\"W\n" +
@@ -1471,7 +1678,27 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\fcentre_theta\x18\x02 \x01(\x01R\vcentreTheta\x12,\n" +
 	"\x12centre_theta_exact\x18\x03 \x01(\x01R\x10centreThetaExact\x12'\n" +
 	"\x0fenergy_fraction\x18\x04 \x01(\x01R\x0eenergyFraction\x122\n" +
-	"\x15energy_fraction_exact\x18\x05 \x01(\x01R\x13energyFractionExactB\x1fZ\x1dsoakfarm/proto/soak/v1;soakv1b\x06proto3"
+	"\x15energy_fraction_exact\x18\x05 \x01(\x01R\x13energyFractionExact\"\xaf\x02\n" +
+	"\n" +
+	"Refinement\x12\x1e\n" +
+	"\vcell_size_m\x18\x01 \x01(\x01R\tcellSizeM\x12'\n" +
+	"\x10fine_cell_size_m\x18\x02 \x01(\x01R\rfineCellSizeM\x12\x14\n" +
+	"\x05order\x18\x03 \x01(\x01R\x05order\x12#\n" +
+	"\rsafety_factor\x18\x04 \x01(\x01R\fsafetyFactor\x125\n" +
+	"\n" +
+	"milestones\x18\x05 \x03(\v2\x15.soak.v1.RefinedValueR\n" +
+	"milestones\x12-\n" +
+	"\x06probes\x18\x06 \x03(\v2\x15.soak.v1.RefinedValueR\x06probes\x12!\n" +
+	"\fwall_seconds\x18\a \x01(\x01R\vwallSeconds\x12\x14\n" +
+	"\x05notes\x18\b \x03(\tR\x05notes\"\xaf\x01\n" +
+	"\fRefinedValue\x12\x12\n" +
+	"\x04name\x18\x01 \x01(\tR\x04name\x12\x16\n" +
+	"\x06coarse\x18\x02 \x01(\x01R\x06coarse\x12\x12\n" +
+	"\x04fine\x18\x03 \x01(\x01R\x04fine\x12\"\n" +
+	"\fextrapolated\x18\x04 \x01(\x01R\fextrapolated\x12\x1d\n" +
+	"\n" +
+	"error_band\x18\x05 \x01(\x01R\terrorBand\x12\x1c\n" +
+	"\tavailable\x18\x06 \x01(\bR\tavailableB\x1fZ\x1dsoakfarm/proto/soak/v1;soakv1b\x06proto3"
 
 var (
 	file_soak_v1_result_proto_rawDescOnce sync.Once
@@ -1485,7 +1712,7 @@ func file_soak_v1_result_proto_rawDescGZIP() []byte {
 	return file_soak_v1_result_proto_rawDescData
 }
 
-var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 12)
+var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 14)
 var file_soak_v1_result_proto_goTypes = []any{
 	(*Summary)(nil),                // 0: soak.v1.Summary
 	(*MilestoneResult)(nil),        // 1: soak.v1.MilestoneResult
@@ -1499,7 +1726,9 @@ var file_soak_v1_result_proto_goTypes = []any{
 	(*HandAnswer)(nil),             // 9: soak.v1.HandAnswer
 	(*CrossCheck)(nil),             // 10: soak.v1.CrossCheck
 	(*CrossCheckSample)(nil),       // 11: soak.v1.CrossCheckSample
-	(*wrapperspb.DoubleValue)(nil), // 12: google.protobuf.DoubleValue
+	(*Refinement)(nil),             // 12: soak.v1.Refinement
+	(*RefinedValue)(nil),           // 13: soak.v1.RefinedValue
+	(*wrapperspb.DoubleValue)(nil), // 14: google.protobuf.DoubleValue
 }
 var file_soak_v1_result_proto_depIdxs = []int32{
 	1,  // 0: soak.v1.Summary.milestones:type_name -> soak.v1.MilestoneResult
@@ -1507,21 +1736,24 @@ var file_soak_v1_result_proto_depIdxs = []int32{
 	3,  // 2: soak.v1.Summary.surface_groups:type_name -> soak.v1.SurfaceGroupSummary
 	4,  // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
 	5,  // 4: soak.v1.Summary.verification:type_name -> soak.v1.Verification
-	12, // 5: soak.v1.MilestoneResult.time_s:type_name -> google.protobuf.DoubleValue
-	7,  // 6: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
-	8,  // 7: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
-	10, // 8: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
-	6,  // 9: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
-	8,  // 10: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
-	9,  // 11: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
-	6,  // 12: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
-	6,  // 13: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
-	11, // 14: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
-	15, // [15:15] is the sub-list for method output_type
-	15, // [15:15] is the sub-list for method input_type
-	15, // [15:15] is the sub-list for extension type_name
-	15, // [15:15] is the sub-list for extension extendee
-	0,  // [0:15] is the sub-list for field type_name
+	12, // 5: soak.v1.Summary.refinement:type_name -> soak.v1.Refinement
+	14, // 6: soak.v1.MilestoneResult.time_s:type_name -> google.protobuf.DoubleValue
+	7,  // 7: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
+	8,  // 8: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
+	10, // 9: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
+	6,  // 10: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
+	8,  // 11: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
+	9,  // 12: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
+	6,  // 13: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
+	6,  // 14: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
+	11, // 15: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
+	13, // 16: soak.v1.Refinement.milestones:type_name -> soak.v1.RefinedValue
+	13, // 17: soak.v1.Refinement.probes:type_name -> soak.v1.RefinedValue
+	18, // [18:18] is the sub-list for method output_type
+	18, // [18:18] is the sub-list for method input_type
+	18, // [18:18] is the sub-list for extension type_name
+	18, // [18:18] is the sub-list for extension extendee
+	0,  // [0:18] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_result_proto_init() }
@@ -1538,7 +1770,7 @@ func file_soak_v1_result_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_soak_v1_result_proto_rawDesc), len(file_soak_v1_result_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   12,
+			NumMessages:   14,
 			NumExtensions: 0,
 			NumServices:   0,
 		},

@@ -53,7 +53,10 @@ type JobSpec struct {
 	// How time advances; defaults suit most cases.
 	TimeStepping *TimeStepping `protobuf:"bytes,12,opt,name=time_stepping,json=timeStepping,proto3" json:"time_stepping,omitempty"`
 	// Simulated times at which to write a 3-D snapshot (VTK image data), s.
-	SnapshotsS    []float64 `protobuf:"fixed64,13,rep,packed,name=snapshots_s,json=snapshotsS,proto3" json:"snapshots_s,omitempty"`
+	SnapshotsS []float64 `protobuf:"fixed64,13,rep,packed,name=snapshots_s,json=snapshotsS,proto3" json:"snapshots_s,omitempty"`
+	// Also solve at half the cell size and report Richardson-extrapolated
+	// milestone times and final probe values with an error band.
+	Refine        bool `protobuf:"varint,40,opt,name=refine,proto3" json:"refine,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -177,6 +180,13 @@ func (x *JobSpec) GetSnapshotsS() []float64 {
 		return x.SnapshotsS
 	}
 	return nil
+}
+
+func (x *JobSpec) GetRefine() bool {
+	if x != nil {
+		return x.Refine
+	}
+	return false
 }
 
 // Part holds exactly one shape.
@@ -939,7 +949,7 @@ var File_soak_v1_spec_proto protoreflect.FileDescriptor
 
 const file_soak_v1_spec_proto_rawDesc = "" +
 	"\n" +
-	"\x12soak/v1/spec.proto\x12\asoak.v1\"\xb8\x04\n" +
+	"\x12soak/v1/spec.proto\x12\asoak.v1\"\xd0\x04\n" +
 	"\aJobSpec\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12!\n" +
 	"\x04part\x18\x02 \x01(\v2\r.soak.v1.PartR\x04part\x12&\n" +
@@ -957,7 +967,8 @@ const file_soak_v1_spec_proto_rawDesc = "" +
 	"\x12stop_at_milestones\x18\v \x01(\bR\x10stopAtMilestones\x12:\n" +
 	"\rtime_stepping\x18\f \x01(\v2\x15.soak.v1.TimeSteppingR\ftimeStepping\x12\x1f\n" +
 	"\vsnapshots_s\x18\r \x03(\x01R\n" +
-	"snapshotsSB\x0f\n" +
+	"snapshotsS\x12\x16\n" +
+	"\x06refine\x18( \x01(\bR\x06refineB\x0f\n" +
 	"\r_cells_acrossB\x0e\n" +
 	"\f_cell_size_mB\f\n" +
 	"\n" +

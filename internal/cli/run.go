@@ -113,7 +113,8 @@ func updateSimBar(bar *progressbar.ProgressBar, p *soakv1.JobProgress) {
 	if len(p.GetProbes()) > 0 {
 		desc += fmt.Sprintf(" %s=%.1f°C", p.GetProbes()[0].GetName(), p.GetProbes()[0].GetTempC())
 	}
-	desc += fmt.Sprintf(" energy %.0f%%", 100*p.GetEnergyFraction())
+	// max(0, ·) keeps "-0%" off the screen at the first step.
+	desc += fmt.Sprintf(" energy %.0f%%", max(0, 100*p.GetEnergyFraction()))
 	bar.Describe(desc)
 	_ = bar.Set64(int64(p.GetSimTimeS() * 1000))
 }

@@ -61,6 +61,9 @@ type Summary struct {
 	// How far to trust this result: hand estimates, a cross-check of the
 	// solver against exact solutions at the job's resolution, and a verdict.
 	Verification *Verification `protobuf:"bytes,24,opt,name=verification,proto3" json:"verification,omitempty"`
+	// Each body of a part built from bodies: its own true volume against the
+	// cells the model gives it.
+	Bodies []*BodySummary `protobuf:"bytes,25,rep,name=bodies,proto3" json:"bodies,omitempty"`
 	// Present when the spec asked to refine.
 	Refinement    *Refinement `protobuf:"bytes,40,opt,name=refinement,proto3" json:"refinement,omitempty"`
 	unknownFields protoimpl.UnknownFields
@@ -265,6 +268,13 @@ func (x *Summary) GetVerification() *Verification {
 	return nil
 }
 
+func (x *Summary) GetBodies() []*BodySummary {
+	if x != nil {
+		return x.Bodies
+	}
+	return nil
+}
+
 func (x *Summary) GetRefinement() *Refinement {
 	if x != nil {
 		return x.Refinement
@@ -396,10 +406,14 @@ type SurfaceGroupSummary struct {
 	// Area of the voxel staircase, m2.
 	VoxelAreaM2 float64 `protobuf:"fixed64,3,opt,name=voxel_area_m2,json=voxelAreaM2,proto3" json:"voxel_area_m2,omitempty"`
 	// Area the model uses after correction, m2.
-	ModelAreaM2   float64  `protobuf:"fixed64,4,opt,name=model_area_m2,json=modelAreaM2,proto3" json:"model_area_m2,omitempty"`
-	HWM2K         float64  `protobuf:"fixed64,5,opt,name=h_w_m2k,json=hWM2k,proto3" json:"h_w_m2k,omitempty"`
-	FluidC        *float64 `protobuf:"fixed64,6,opt,name=fluid_c,json=fluidC,proto3,oneof" json:"fluid_c,omitempty"`
-	Emissivity    *float64 `protobuf:"fixed64,7,opt,name=emissivity,proto3,oneof" json:"emissivity,omitempty"`
+	ModelAreaM2 float64  `protobuf:"fixed64,4,opt,name=model_area_m2,json=modelAreaM2,proto3" json:"model_area_m2,omitempty"`
+	HWM2K       float64  `protobuf:"fixed64,5,opt,name=h_w_m2k,json=hWM2k,proto3" json:"h_w_m2k,omitempty"`
+	FluidC      *float64 `protobuf:"fixed64,6,opt,name=fluid_c,json=fluidC,proto3,oneof" json:"fluid_c,omitempty"`
+	Emissivity  *float64 `protobuf:"fixed64,7,opt,name=emissivity,proto3,oneof" json:"emissivity,omitempty"`
+	// True when true_area_m2 comes from the geometry (closed forms, or the
+	// STL triangles' own areas); false when no exact area is known (a part
+	// of several bodies) and true_area_m2 is the corrected faces' sum.
+	TrueAreaExact bool `protobuf:"varint,8,opt,name=true_area_exact,json=trueAreaExact,proto3" json:"true_area_exact,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -483,6 +497,95 @@ func (x *SurfaceGroupSummary) GetEmissivity() float64 {
 	return 0
 }
 
+func (x *SurfaceGroupSummary) GetTrueAreaExact() bool {
+	if x != nil {
+		return x.TrueAreaExact
+	}
+	return false
+}
+
+// BodySummary is one body of a part built from bodies.
+type BodySummary struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	Name  string                 `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
+	// Material name; "material" for the top-level one.
+	Material string `protobuf:"bytes,2,opt,name=material,proto3" json:"material,omitempty"`
+	Subtract bool   `protobuf:"varint,3,opt,name=subtract,proto3" json:"subtract,omitempty"`
+	// The body's own volume as given (closed form, or the STL surface's
+	// enclosed volume), m3, whatever other bodies overlap or cut from it.
+	TrueVolumeM3 float64 `protobuf:"fixed64,4,opt,name=true_volume_m3,json=trueVolumeM3,proto3" json:"true_volume_m3,omitempty"`
+	// Volume of the cells the body holds in the model (for a subtracted
+	// body, the cells it removed), m3.
+	ModelVolumeM3 float64 `protobuf:"fixed64,5,opt,name=model_volume_m3,json=modelVolumeM3,proto3" json:"model_volume_m3,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *BodySummary) Reset() {
+	*x = BodySummary{}
+	mi := &file_soak_v1_result_proto_msgTypes[4]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *BodySummary) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*BodySummary) ProtoMessage() {}
+
+func (x *BodySummary) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_result_proto_msgTypes[4]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use BodySummary.ProtoReflect.Descriptor instead.
+func (*BodySummary) Descriptor() ([]byte, []int) {
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{4}
+}
+
+func (x *BodySummary) GetName() string {
+	if x != nil {
+		return x.Name
+	}
+	return ""
+}
+
+func (x *BodySummary) GetMaterial() string {
+	if x != nil {
+		return x.Material
+	}
+	return ""
+}
+
+func (x *BodySummary) GetSubtract() bool {
+	if x != nil {
+		return x.Subtract
+	}
+	return false
+}
+
+func (x *BodySummary) GetTrueVolumeM3() float64 {
+	if x != nil {
+		return x.TrueVolumeM3
+	}
+	return 0
+}
+
+func (x *BodySummary) GetModelVolumeM3() float64 {
+	if x != nil {
+		return x.ModelVolumeM3
+	}
+	return 0
+}
+
 type GridSummary struct {
 	state               protoimpl.MessageState `protogen:"open.v1"`
 	Cells               []uint32               `protobuf:"varint,1,rep,packed,name=cells,proto3" json:"cells,omitempty"`
@@ -495,7 +598,7 @@ type GridSummary struct {
 
 func (x *GridSummary) Reset() {
 	*x = GridSummary{}
-	mi := &file_soak_v1_result_proto_msgTypes[4]
+	mi := &file_soak_v1_result_proto_msgTypes[5]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -507,7 +610,7 @@ func (x *GridSummary) String() string {
 func (*GridSummary) ProtoMessage() {}
 
 func (x *GridSummary) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[4]
+	mi := &file_soak_v1_result_proto_msgTypes[5]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -520,7 +623,7 @@ func (x *GridSummary) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GridSummary.ProtoReflect.Descriptor instead.
 func (*GridSummary) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{4}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{5}
 }
 
 func (x *GridSummary) GetCells() []uint32 {
@@ -575,7 +678,7 @@ type Verification struct {
 
 func (x *Verification) Reset() {
 	*x = Verification{}
-	mi := &file_soak_v1_result_proto_msgTypes[5]
+	mi := &file_soak_v1_result_proto_msgTypes[6]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -587,7 +690,7 @@ func (x *Verification) String() string {
 func (*Verification) ProtoMessage() {}
 
 func (x *Verification) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[5]
+	mi := &file_soak_v1_result_proto_msgTypes[6]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -600,7 +703,7 @@ func (x *Verification) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Verification.ProtoReflect.Descriptor instead.
 func (*Verification) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{5}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{6}
 }
 
 func (x *Verification) GetEstimate() *HandEstimate {
@@ -665,7 +768,7 @@ type Check struct {
 
 func (x *Check) Reset() {
 	*x = Check{}
-	mi := &file_soak_v1_result_proto_msgTypes[6]
+	mi := &file_soak_v1_result_proto_msgTypes[7]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -677,7 +780,7 @@ func (x *Check) String() string {
 func (*Check) ProtoMessage() {}
 
 func (x *Check) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[6]
+	mi := &file_soak_v1_result_proto_msgTypes[7]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -690,7 +793,7 @@ func (x *Check) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Check.ProtoReflect.Descriptor instead.
 func (*Check) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{6}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{7}
 }
 
 func (x *Check) GetValue() float64 {
@@ -760,7 +863,7 @@ type HandEstimate struct {
 
 func (x *HandEstimate) Reset() {
 	*x = HandEstimate{}
-	mi := &file_soak_v1_result_proto_msgTypes[7]
+	mi := &file_soak_v1_result_proto_msgTypes[8]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -772,7 +875,7 @@ func (x *HandEstimate) String() string {
 func (*HandEstimate) ProtoMessage() {}
 
 func (x *HandEstimate) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[7]
+	mi := &file_soak_v1_result_proto_msgTypes[8]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -785,7 +888,7 @@ func (x *HandEstimate) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use HandEstimate.ProtoReflect.Descriptor instead.
 func (*HandEstimate) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{7}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{8}
 }
 
 func (x *HandEstimate) GetVolumeM3() float64 {
@@ -957,7 +1060,7 @@ type MilestoneEstimate struct {
 
 func (x *MilestoneEstimate) Reset() {
 	*x = MilestoneEstimate{}
-	mi := &file_soak_v1_result_proto_msgTypes[8]
+	mi := &file_soak_v1_result_proto_msgTypes[9]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -969,7 +1072,7 @@ func (x *MilestoneEstimate) String() string {
 func (*MilestoneEstimate) ProtoMessage() {}
 
 func (x *MilestoneEstimate) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[8]
+	mi := &file_soak_v1_result_proto_msgTypes[9]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -982,7 +1085,7 @@ func (x *MilestoneEstimate) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use MilestoneEstimate.ProtoReflect.Descriptor instead.
 func (*MilestoneEstimate) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{8}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{9}
 }
 
 func (x *MilestoneEstimate) GetName() string {
@@ -1024,7 +1127,7 @@ type HandAnswer struct {
 
 func (x *HandAnswer) Reset() {
 	*x = HandAnswer{}
-	mi := &file_soak_v1_result_proto_msgTypes[9]
+	mi := &file_soak_v1_result_proto_msgTypes[10]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1036,7 +1139,7 @@ func (x *HandAnswer) String() string {
 func (*HandAnswer) ProtoMessage() {}
 
 func (x *HandAnswer) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[9]
+	mi := &file_soak_v1_result_proto_msgTypes[10]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1049,7 +1152,7 @@ func (x *HandAnswer) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use HandAnswer.ProtoReflect.Descriptor instead.
 func (*HandAnswer) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{9}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{10}
 }
 
 func (x *HandAnswer) GetMethod() string {
@@ -1122,7 +1225,7 @@ type CrossCheck struct {
 
 func (x *CrossCheck) Reset() {
 	*x = CrossCheck{}
-	mi := &file_soak_v1_result_proto_msgTypes[10]
+	mi := &file_soak_v1_result_proto_msgTypes[11]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1134,7 +1237,7 @@ func (x *CrossCheck) String() string {
 func (*CrossCheck) ProtoMessage() {}
 
 func (x *CrossCheck) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[10]
+	mi := &file_soak_v1_result_proto_msgTypes[11]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1147,7 +1250,7 @@ func (x *CrossCheck) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use CrossCheck.ProtoReflect.Descriptor instead.
 func (*CrossCheck) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{10}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{11}
 }
 
 func (x *CrossCheck) GetShape() string {
@@ -1271,7 +1374,7 @@ type CrossCheckSample struct {
 
 func (x *CrossCheckSample) Reset() {
 	*x = CrossCheckSample{}
-	mi := &file_soak_v1_result_proto_msgTypes[11]
+	mi := &file_soak_v1_result_proto_msgTypes[12]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1283,7 +1386,7 @@ func (x *CrossCheckSample) String() string {
 func (*CrossCheckSample) ProtoMessage() {}
 
 func (x *CrossCheckSample) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[11]
+	mi := &file_soak_v1_result_proto_msgTypes[12]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1296,7 +1399,7 @@ func (x *CrossCheckSample) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use CrossCheckSample.ProtoReflect.Descriptor instead.
 func (*CrossCheckSample) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{11}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{12}
 }
 
 func (x *CrossCheckSample) GetFourierNumber() float64 {
@@ -1356,7 +1459,7 @@ type Refinement struct {
 
 func (x *Refinement) Reset() {
 	*x = Refinement{}
-	mi := &file_soak_v1_result_proto_msgTypes[12]
+	mi := &file_soak_v1_result_proto_msgTypes[13]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1368,7 +1471,7 @@ func (x *Refinement) String() string {
 func (*Refinement) ProtoMessage() {}
 
 func (x *Refinement) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[12]
+	mi := &file_soak_v1_result_proto_msgTypes[13]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1381,7 +1484,7 @@ func (x *Refinement) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Refinement.ProtoReflect.Descriptor instead.
 func (*Refinement) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{12}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{13}
 }
 
 func (x *Refinement) GetCellSizeM() float64 {
@@ -1459,7 +1562,7 @@ type RefinedValue struct {
 
 func (x *RefinedValue) Reset() {
 	*x = RefinedValue{}
-	mi := &file_soak_v1_result_proto_msgTypes[13]
+	mi := &file_soak_v1_result_proto_msgTypes[14]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1471,7 +1574,7 @@ func (x *RefinedValue) String() string {
 func (*RefinedValue) ProtoMessage() {}
 
 func (x *RefinedValue) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_result_proto_msgTypes[13]
+	mi := &file_soak_v1_result_proto_msgTypes[14]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1484,7 +1587,7 @@ func (x *RefinedValue) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RefinedValue.ProtoReflect.Descriptor instead.
 func (*RefinedValue) Descriptor() ([]byte, []int) {
-	return file_soak_v1_result_proto_rawDescGZIP(), []int{13}
+	return file_soak_v1_result_proto_rawDescGZIP(), []int{14}
 }
 
 func (x *RefinedValue) GetName() string {
@@ -1533,7 +1636,7 @@ var File_soak_v1_result_proto protoreflect.FileDescriptor
 
 const file_soak_v1_result_proto_rawDesc = "" +
 	"\n" +
-	"\x14soak/v1/result.proto\x12\asoak.v1\x1a\x1egoogle/protobuf/wrappers.proto\"\xf5\a\n" +
+	"\x14soak/v1/result.proto\x12\asoak.v1\x1a\x1egoogle/protobuf/wrappers.proto\"\xa3\b\n" +
 	"\aSummary\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x18\n" +
 	"\acaution\x18\x02 \x01(\tR\acaution\x12\x1f\n" +
@@ -1565,7 +1668,8 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\x06scheme\x18\x15 \x01(\tR\x06scheme\x12!\n" +
 	"\fwall_seconds\x18\x16 \x01(\x01R\vwallSeconds\x12\x1c\n" +
 	"\tartifacts\x18\x17 \x03(\tR\tartifacts\x129\n" +
-	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\x123\n" +
+	"\fverification\x18\x18 \x01(\v2\x15.soak.v1.VerificationR\fverification\x12,\n" +
+	"\x06bodies\x18\x19 \x03(\v2\x14.soak.v1.BodySummaryR\x06bodies\x123\n" +
 	"\n" +
 	"refinement\x18( \x01(\v2\x13.soak.v1.RefinementR\n" +
 	"refinement\"Z\n" +
@@ -1575,7 +1679,7 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\fProbeReading\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x15\n" +
 	"\x06temp_c\x18\x02 \x01(\x01R\x05tempC\x12\x1c\n" +
-	"\tplacement\x18\x03 \x01(\tR\tplacement\"\x89\x02\n" +
+	"\tplacement\x18\x03 \x01(\tR\tplacement\"\xb1\x02\n" +
 	"\x13SurfaceGroupSummary\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12 \n" +
 	"\ftrue_area_m2\x18\x02 \x01(\x01R\n" +
@@ -1586,10 +1690,17 @@ const file_soak_v1_result_proto_rawDesc = "" +
 	"\afluid_c\x18\x06 \x01(\x01H\x00R\x06fluidC\x88\x01\x01\x12#\n" +
 	"\n" +
 	"emissivity\x18\a \x01(\x01H\x01R\n" +
-	"emissivity\x88\x01\x01B\n" +
+	"emissivity\x88\x01\x01\x12&\n" +
+	"\x0ftrue_area_exact\x18\b \x01(\bR\rtrueAreaExactB\n" +
 	"\n" +
 	"\b_fluid_cB\r\n" +
-	"\v_emissivity\"\x96\x01\n" +
+	"\v_emissivity\"\xa7\x01\n" +
+	"\vBodySummary\x12\x12\n" +
+	"\x04name\x18\x01 \x01(\tR\x04name\x12\x1a\n" +
+	"\bmaterial\x18\x02 \x01(\tR\bmaterial\x12\x1a\n" +
+	"\bsubtract\x18\x03 \x01(\bR\bsubtract\x12$\n" +
+	"\x0etrue_volume_m3\x18\x04 \x01(\x01R\ftrueVolumeM3\x12&\n" +
+	"\x0fmodel_volume_m3\x18\x05 \x01(\x01R\rmodelVolumeM3\"\x96\x01\n" +
 	"\vGridSummary\x12\x14\n" +
 	"\x05cells\x18\x01 \x03(\rR\x05cells\x12\x1e\n" +
 	"\vcell_size_m\x18\x02 \x01(\x01R\tcellSizeM\x12\x1d\n" +
@@ -1712,48 +1823,50 @@ func file_soak_v1_result_proto_rawDescGZIP() []byte {
 	return file_soak_v1_result_proto_rawDescData
 }
 
-var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 14)
+var file_soak_v1_result_proto_msgTypes = make([]protoimpl.MessageInfo, 15)
 var file_soak_v1_result_proto_goTypes = []any{
 	(*Summary)(nil),                // 0: soak.v1.Summary
 	(*MilestoneResult)(nil),        // 1: soak.v1.MilestoneResult
 	(*ProbeReading)(nil),           // 2: soak.v1.ProbeReading
 	(*SurfaceGroupSummary)(nil),    // 3: soak.v1.SurfaceGroupSummary
-	(*GridSummary)(nil),            // 4: soak.v1.GridSummary
-	(*Verification)(nil),           // 5: soak.v1.Verification
-	(*Check)(nil),                  // 6: soak.v1.Check
-	(*HandEstimate)(nil),           // 7: soak.v1.HandEstimate
-	(*MilestoneEstimate)(nil),      // 8: soak.v1.MilestoneEstimate
-	(*HandAnswer)(nil),             // 9: soak.v1.HandAnswer
-	(*CrossCheck)(nil),             // 10: soak.v1.CrossCheck
-	(*CrossCheckSample)(nil),       // 11: soak.v1.CrossCheckSample
-	(*Refinement)(nil),             // 12: soak.v1.Refinement
-	(*RefinedValue)(nil),           // 13: soak.v1.RefinedValue
-	(*wrapperspb.DoubleValue)(nil), // 14: google.protobuf.DoubleValue
+	(*BodySummary)(nil),            // 4: soak.v1.BodySummary
+	(*GridSummary)(nil),            // 5: soak.v1.GridSummary
+	(*Verification)(nil),           // 6: soak.v1.Verification
+	(*Check)(nil),                  // 7: soak.v1.Check
+	(*HandEstimate)(nil),           // 8: soak.v1.HandEstimate
+	(*MilestoneEstimate)(nil),      // 9: soak.v1.MilestoneEstimate
+	(*HandAnswer)(nil),             // 10: soak.v1.HandAnswer
+	(*CrossCheck)(nil),             // 11: soak.v1.CrossCheck
+	(*CrossCheckSample)(nil),       // 12: soak.v1.CrossCheckSample
+	(*Refinement)(nil),             // 13: soak.v1.Refinement
+	(*RefinedValue)(nil),           // 14: soak.v1.RefinedValue
+	(*wrapperspb.DoubleValue)(nil), // 15: google.protobuf.DoubleValue
 }
 var file_soak_v1_result_proto_depIdxs = []int32{
 	1,  // 0: soak.v1.Summary.milestones:type_name -> soak.v1.MilestoneResult
 	2,  // 1: soak.v1.Summary.final_probes:type_name -> soak.v1.ProbeReading
 	3,  // 2: soak.v1.Summary.surface_groups:type_name -> soak.v1.SurfaceGroupSummary
-	4,  // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
-	5,  // 4: soak.v1.Summary.verification:type_name -> soak.v1.Verification
-	12, // 5: soak.v1.Summary.refinement:type_name -> soak.v1.Refinement
-	14, // 6: soak.v1.MilestoneResult.time_s:type_name -> google.protobuf.DoubleValue
-	7,  // 7: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
-	8,  // 8: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
-	10, // 9: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
-	6,  // 10: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
-	8,  // 11: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
-	9,  // 12: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
-	6,  // 13: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
-	6,  // 14: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
-	11, // 15: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
-	13, // 16: soak.v1.Refinement.milestones:type_name -> soak.v1.RefinedValue
-	13, // 17: soak.v1.Refinement.probes:type_name -> soak.v1.RefinedValue
-	18, // [18:18] is the sub-list for method output_type
-	18, // [18:18] is the sub-list for method input_type
-	18, // [18:18] is the sub-list for extension type_name
-	18, // [18:18] is the sub-list for extension extendee
-	0,  // [0:18] is the sub-list for field type_name
+	5,  // 3: soak.v1.Summary.grid:type_name -> soak.v1.GridSummary
+	6,  // 4: soak.v1.Summary.verification:type_name -> soak.v1.Verification
+	4,  // 5: soak.v1.Summary.bodies:type_name -> soak.v1.BodySummary
+	13, // 6: soak.v1.Summary.refinement:type_name -> soak.v1.Refinement
+	15, // 7: soak.v1.MilestoneResult.time_s:type_name -> google.protobuf.DoubleValue
+	8,  // 8: soak.v1.Verification.estimate:type_name -> soak.v1.HandEstimate
+	9,  // 9: soak.v1.Verification.milestones:type_name -> soak.v1.MilestoneEstimate
+	11, // 10: soak.v1.Verification.cross_checks:type_name -> soak.v1.CrossCheck
+	7,  // 11: soak.v1.Verification.energy_balance:type_name -> soak.v1.Check
+	9,  // 12: soak.v1.HandEstimate.milestones:type_name -> soak.v1.MilestoneEstimate
+	10, // 13: soak.v1.MilestoneEstimate.answers:type_name -> soak.v1.HandAnswer
+	7,  // 14: soak.v1.CrossCheck.temperature_error:type_name -> soak.v1.Check
+	7,  // 15: soak.v1.CrossCheck.energy_error:type_name -> soak.v1.Check
+	12, // 16: soak.v1.CrossCheck.samples:type_name -> soak.v1.CrossCheckSample
+	14, // 17: soak.v1.Refinement.milestones:type_name -> soak.v1.RefinedValue
+	14, // 18: soak.v1.Refinement.probes:type_name -> soak.v1.RefinedValue
+	19, // [19:19] is the sub-list for method output_type
+	19, // [19:19] is the sub-list for method input_type
+	19, // [19:19] is the sub-list for extension type_name
+	19, // [19:19] is the sub-list for extension extendee
+	0,  // [0:19] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_result_proto_init() }
@@ -1762,15 +1875,15 @@ func file_soak_v1_result_proto_init() {
 		return
 	}
 	file_soak_v1_result_proto_msgTypes[3].OneofWrappers = []any{}
-	file_soak_v1_result_proto_msgTypes[8].OneofWrappers = []any{}
 	file_soak_v1_result_proto_msgTypes[9].OneofWrappers = []any{}
+	file_soak_v1_result_proto_msgTypes[10].OneofWrappers = []any{}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_soak_v1_result_proto_rawDesc), len(file_soak_v1_result_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   14,
+			NumMessages:   15,
 			NumExtensions: 0,
 			NumServices:   0,
 		},

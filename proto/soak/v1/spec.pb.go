@@ -31,14 +31,16 @@ type JobSpec struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Free text shown in reports.
 	Name string `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
-	// The part's geometry, centred on the origin.
+	// The part's geometry: one shape centred on the origin, or bodies.
 	Part *Part `protobuf:"bytes,2,opt,name=part,proto3" json:"part,omitempty"`
 	// Cells along the part's smallest extent. Exactly one of cells_across
 	// and cell_size_m is set.
 	CellsAcross *uint32 `protobuf:"varint,3,opt,name=cells_across,json=cellsAcross,proto3,oneof" json:"cells_across,omitempty"`
 	// Edge of a cubic cell, m.
-	CellSizeM *float64  `protobuf:"fixed64,4,opt,name=cell_size_m,json=cellSizeM,proto3,oneof" json:"cell_size_m,omitempty"`
-	Material  *Material `protobuf:"bytes,5,opt,name=material,proto3" json:"material,omitempty"`
+	CellSizeM *float64 `protobuf:"fixed64,4,opt,name=cell_size_m,json=cellSizeM,proto3,oneof" json:"cell_size_m,omitempty"`
+	// The part's material; with bodies, the material of every body that
+	// names none.
+	Material *Material `protobuf:"bytes,5,opt,name=material,proto3" json:"material,omitempty"`
 	// Uniform starting temperature, deg C.
 	InitialC *float64 `protobuf:"fixed64,6,opt,name=initial_c,json=initialC,proto3,oneof" json:"initial_c,omitempty"`
 	// Boundary exposure; later entries override earlier ones on shared faces.
@@ -54,6 +56,11 @@ type JobSpec struct {
 	TimeStepping *TimeStepping `protobuf:"bytes,12,opt,name=time_stepping,json=timeStepping,proto3" json:"time_stepping,omitempty"`
 	// Simulated times at which to write a 3-D snapshot (VTK image data), s.
 	SnapshotsS []float64 `protobuf:"fixed64,13,rep,packed,name=snapshots_s,json=snapshotsS,proto3" json:"snapshots_s,omitempty"`
+	// Named materials that bodies refer to by name.
+	Materials map[string]*Material `protobuf:"bytes,14,rep,name=materials,proto3" json:"materials,omitempty" protobuf_key:"bytes,1,opt,name=key" protobuf_val:"bytes,2,opt,name=value"`
+	// Thermal contact between regions of two materials: a conductance in
+	// series with the conduction of both sides.
+	Contacts []*Contact `protobuf:"bytes,15,rep,name=contacts,proto3" json:"contacts,omitempty"`
 	// Also solve at half the cell size and report Richardson-extrapolated
 	// milestone times and final probe values with an error band.
 	Refine        bool `protobuf:"varint,40,opt,name=refine,proto3" json:"refine,omitempty"`
@@ -182,6 +189,20 @@ func (x *JobSpec) GetSnapshotsS() []float64 {
 	return nil
 }
 
+func (x *JobSpec) GetMaterials() map[string]*Material {
+	if x != nil {
+		return x.Materials
+	}
+	return nil
+}
+
+func (x *JobSpec) GetContacts() []*Contact {
+	if x != nil {
+		return x.Contacts
+	}
+	return nil
+}
+
 func (x *JobSpec) GetRefine() bool {
 	if x != nil {
 		return x.Refine
@@ -189,7 +210,7 @@ func (x *JobSpec) GetRefine() bool {
 	return false
 }
 
-// Part holds exactly one shape.
+// Part holds exactly one shape, or a list of bodies.
 type Part struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Types that are valid to be assigned to Shape:
@@ -197,7 +218,11 @@ type Part struct {
 	//	*Part_Sphere
 	//	*Part_Cylinder
 	//	*Part_Box
-	Shape         isPart_Shape `protobuf_oneof:"shape"`
+	Shape isPart_Shape `protobuf_oneof:"shape"`
+	// Bodies build the part in order: a body adds its cells (its material
+	// wins where it overlaps earlier bodies) or, with subtract, removes them.
+	// Set instead of a shape.
+	Bodies        []*Body `protobuf:"bytes,4,rep,name=bodies,proto3" json:"bodies,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -266,6 +291,13 @@ func (x *Part) GetBox() *Box {
 	return nil
 }
 
+func (x *Part) GetBodies() []*Body {
+	if x != nil {
+		return x.Bodies
+	}
+	return nil
+}
+
 type isPart_Shape interface {
 	isPart_Shape()
 }
@@ -288,6 +320,343 @@ func (*Part_Cylinder) isPart_Shape() {}
 
 func (*Part_Box) isPart_Shape() {}
 
+// Body is one solid of a part built from bodies.
+type Body struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Name by which exposure entries select its surface; unique.
+	Name string `protobuf:"bytes,1,opt,name=name,proto3" json:"name,omitempty"`
+	// Types that are valid to be assigned to Shape:
+	//
+	//	*Body_Sphere
+	//	*Body_Cylinder
+	//	*Body_Box
+	//	*Body_Stl
+	Shape isBody_Shape `protobuf_oneof:"shape"`
+	// Where the body goes; primitive shapes start centred on the origin,
+	// STL bodies at the file's own coordinates.
+	Place *Placement `protobuf:"bytes,6,opt,name=place,proto3" json:"place,omitempty"`
+	// Remove the body's cells from the part instead of adding them.
+	Subtract bool `protobuf:"varint,7,opt,name=subtract,proto3" json:"subtract,omitempty"`
+	// Key of the top-level materials map; empty means the top-level material.
+	Material      string `protobuf:"bytes,8,opt,name=material,proto3" json:"material,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Body) Reset() {
+	*x = Body{}
+	mi := &file_soak_v1_spec_proto_msgTypes[2]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Body) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Body) ProtoMessage() {}
+
+func (x *Body) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_spec_proto_msgTypes[2]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Body.ProtoReflect.Descriptor instead.
+func (*Body) Descriptor() ([]byte, []int) {
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{2}
+}
+
+func (x *Body) GetName() string {
+	if x != nil {
+		return x.Name
+	}
+	return ""
+}
+
+func (x *Body) GetShape() isBody_Shape {
+	if x != nil {
+		return x.Shape
+	}
+	return nil
+}
+
+func (x *Body) GetSphere() *Sphere {
+	if x != nil {
+		if x, ok := x.Shape.(*Body_Sphere); ok {
+			return x.Sphere
+		}
+	}
+	return nil
+}
+
+func (x *Body) GetCylinder() *Cylinder {
+	if x != nil {
+		if x, ok := x.Shape.(*Body_Cylinder); ok {
+			return x.Cylinder
+		}
+	}
+	return nil
+}
+
+func (x *Body) GetBox() *Box {
+	if x != nil {
+		if x, ok := x.Shape.(*Body_Box); ok {
+			return x.Box
+		}
+	}
+	return nil
+}
+
+func (x *Body) GetStl() *StlFile {
+	if x != nil {
+		if x, ok := x.Shape.(*Body_Stl); ok {
+			return x.Stl
+		}
+	}
+	return nil
+}
+
+func (x *Body) GetPlace() *Placement {
+	if x != nil {
+		return x.Place
+	}
+	return nil
+}
+
+func (x *Body) GetSubtract() bool {
+	if x != nil {
+		return x.Subtract
+	}
+	return false
+}
+
+func (x *Body) GetMaterial() string {
+	if x != nil {
+		return x.Material
+	}
+	return ""
+}
+
+type isBody_Shape interface {
+	isBody_Shape()
+}
+
+type Body_Sphere struct {
+	Sphere *Sphere `protobuf:"bytes,2,opt,name=sphere,proto3,oneof"`
+}
+
+type Body_Cylinder struct {
+	Cylinder *Cylinder `protobuf:"bytes,3,opt,name=cylinder,proto3,oneof"`
+}
+
+type Body_Box struct {
+	Box *Box `protobuf:"bytes,4,opt,name=box,proto3,oneof"`
+}
+
+type Body_Stl struct {
+	Stl *StlFile `protobuf:"bytes,5,opt,name=stl,proto3,oneof"`
+}
+
+func (*Body_Sphere) isBody_Shape() {}
+
+func (*Body_Cylinder) isBody_Shape() {}
+
+func (*Body_Box) isBody_Shape() {}
+
+func (*Body_Stl) isBody_Shape() {}
+
+// Placement turns a body about its origin, first about x, then y, then z
+// (degrees, right-hand rule), and then moves it.
+type Placement struct {
+	state         protoimpl.MessageState `protogen:"open.v1"`
+	TranslateM    []float64              `protobuf:"fixed64,1,rep,packed,name=translate_m,json=translateM,proto3" json:"translate_m,omitempty"`
+	RotateDeg     []float64              `protobuf:"fixed64,2,rep,packed,name=rotate_deg,json=rotateDeg,proto3" json:"rotate_deg,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Placement) Reset() {
+	*x = Placement{}
+	mi := &file_soak_v1_spec_proto_msgTypes[3]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Placement) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Placement) ProtoMessage() {}
+
+func (x *Placement) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_spec_proto_msgTypes[3]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Placement.ProtoReflect.Descriptor instead.
+func (*Placement) Descriptor() ([]byte, []int) {
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{3}
+}
+
+func (x *Placement) GetTranslateM() []float64 {
+	if x != nil {
+		return x.TranslateM
+	}
+	return nil
+}
+
+func (x *Placement) GetRotateDeg() []float64 {
+	if x != nil {
+		return x.RotateDeg
+	}
+	return nil
+}
+
+// StlFile is a triangle mesh in STL (binary or ASCII).
+type StlFile struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Path relative to the spec's folder; read by local runs and by the farm
+	// client, which copies the file's bytes into data before submitting.
+	File string `protobuf:"bytes,1,opt,name=file,proto3" json:"file,omitempty"`
+	// Length unit of the file's coordinates: "m" (default), "mm" or "in".
+	Units string `protobuf:"bytes,2,opt,name=units,proto3" json:"units,omitempty"`
+	// Close holes whose boundary has at most this many edges (0: refuse a
+	// mesh that is not closed).
+	RepairHoles uint32 `protobuf:"varint,3,opt,name=repair_holes,json=repairHoles,proto3" json:"repair_holes,omitempty"`
+	// The file's bytes; when set, file is only a label.
+	Data          []byte `protobuf:"bytes,4,opt,name=data,proto3" json:"data,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *StlFile) Reset() {
+	*x = StlFile{}
+	mi := &file_soak_v1_spec_proto_msgTypes[4]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *StlFile) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*StlFile) ProtoMessage() {}
+
+func (x *StlFile) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_spec_proto_msgTypes[4]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use StlFile.ProtoReflect.Descriptor instead.
+func (*StlFile) Descriptor() ([]byte, []int) {
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{4}
+}
+
+func (x *StlFile) GetFile() string {
+	if x != nil {
+		return x.File
+	}
+	return ""
+}
+
+func (x *StlFile) GetUnits() string {
+	if x != nil {
+		return x.Units
+	}
+	return ""
+}
+
+func (x *StlFile) GetRepairHoles() uint32 {
+	if x != nil {
+		return x.RepairHoles
+	}
+	return 0
+}
+
+func (x *StlFile) GetData() []byte {
+	if x != nil {
+		return x.Data
+	}
+	return nil
+}
+
+// Contact is the thermal contact conductance where regions of two
+// materials touch.
+type Contact struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The two material names (keys of materials; "material" for the
+	// top-level one).
+	Materials       []string `protobuf:"bytes,1,rep,name=materials,proto3" json:"materials,omitempty"`
+	ConductanceWM2K float64  `protobuf:"fixed64,2,opt,name=conductance_w_m2k,json=conductanceWM2k,proto3" json:"conductance_w_m2k,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
+}
+
+func (x *Contact) Reset() {
+	*x = Contact{}
+	mi := &file_soak_v1_spec_proto_msgTypes[5]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Contact) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Contact) ProtoMessage() {}
+
+func (x *Contact) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_spec_proto_msgTypes[5]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Contact.ProtoReflect.Descriptor instead.
+func (*Contact) Descriptor() ([]byte, []int) {
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{5}
+}
+
+func (x *Contact) GetMaterials() []string {
+	if x != nil {
+		return x.Materials
+	}
+	return nil
+}
+
+func (x *Contact) GetConductanceWM2K() float64 {
+	if x != nil {
+		return x.ConductanceWM2K
+	}
+	return 0
+}
+
 type Sphere struct {
 	state         protoimpl.MessageState `protogen:"open.v1"`
 	DiameterM     float64                `protobuf:"fixed64,1,opt,name=diameter_m,json=diameterM,proto3" json:"diameter_m,omitempty"`
@@ -297,7 +666,7 @@ type Sphere struct {
 
 func (x *Sphere) Reset() {
 	*x = Sphere{}
-	mi := &file_soak_v1_spec_proto_msgTypes[2]
+	mi := &file_soak_v1_spec_proto_msgTypes[6]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -309,7 +678,7 @@ func (x *Sphere) String() string {
 func (*Sphere) ProtoMessage() {}
 
 func (x *Sphere) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[2]
+	mi := &file_soak_v1_spec_proto_msgTypes[6]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -322,7 +691,7 @@ func (x *Sphere) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Sphere.ProtoReflect.Descriptor instead.
 func (*Sphere) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{2}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{6}
 }
 
 func (x *Sphere) GetDiameterM() float64 {
@@ -344,7 +713,7 @@ type Cylinder struct {
 
 func (x *Cylinder) Reset() {
 	*x = Cylinder{}
-	mi := &file_soak_v1_spec_proto_msgTypes[3]
+	mi := &file_soak_v1_spec_proto_msgTypes[7]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -356,7 +725,7 @@ func (x *Cylinder) String() string {
 func (*Cylinder) ProtoMessage() {}
 
 func (x *Cylinder) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[3]
+	mi := &file_soak_v1_spec_proto_msgTypes[7]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -369,7 +738,7 @@ func (x *Cylinder) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Cylinder.ProtoReflect.Descriptor instead.
 func (*Cylinder) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{3}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{7}
 }
 
 func (x *Cylinder) GetDiameterM() float64 {
@@ -403,7 +772,7 @@ type Box struct {
 
 func (x *Box) Reset() {
 	*x = Box{}
-	mi := &file_soak_v1_spec_proto_msgTypes[4]
+	mi := &file_soak_v1_spec_proto_msgTypes[8]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -415,7 +784,7 @@ func (x *Box) String() string {
 func (*Box) ProtoMessage() {}
 
 func (x *Box) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[4]
+	mi := &file_soak_v1_spec_proto_msgTypes[8]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -428,7 +797,7 @@ func (x *Box) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Box.ProtoReflect.Descriptor instead.
 func (*Box) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{4}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{8}
 }
 
 func (x *Box) GetSizeM() []float64 {
@@ -454,7 +823,7 @@ type Material struct {
 
 func (x *Material) Reset() {
 	*x = Material{}
-	mi := &file_soak_v1_spec_proto_msgTypes[5]
+	mi := &file_soak_v1_spec_proto_msgTypes[9]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -466,7 +835,7 @@ func (x *Material) String() string {
 func (*Material) ProtoMessage() {}
 
 func (x *Material) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[5]
+	mi := &file_soak_v1_spec_proto_msgTypes[9]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -479,7 +848,7 @@ func (x *Material) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Material.ProtoReflect.Descriptor instead.
 func (*Material) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{5}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{9}
 }
 
 func (x *Material) GetDensityKgM3() float64 {
@@ -527,7 +896,7 @@ type TablePoint struct {
 
 func (x *TablePoint) Reset() {
 	*x = TablePoint{}
-	mi := &file_soak_v1_spec_proto_msgTypes[6]
+	mi := &file_soak_v1_spec_proto_msgTypes[10]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -539,7 +908,7 @@ func (x *TablePoint) String() string {
 func (*TablePoint) ProtoMessage() {}
 
 func (x *TablePoint) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[6]
+	mi := &file_soak_v1_spec_proto_msgTypes[10]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -552,7 +921,7 @@ func (x *TablePoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use TablePoint.ProtoReflect.Descriptor instead.
 func (*TablePoint) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{6}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{10}
 }
 
 func (x *TablePoint) GetTempC() float64 {
@@ -572,7 +941,8 @@ func (x *TablePoint) GetValue() float64 {
 // Exposure applies convection and optional radiation to a set of faces.
 type Exposure struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// "all" selects every face of the part.
+	// "all" selects every face of the part. Otherwise facing, solids,
+	// bodies and region select the faces that meet every one of them given.
 	Surfaces string `protobuf:"bytes,1,opt,name=surfaces,proto3" json:"surfaces,omitempty"`
 	// Axis directions ("+x", "-x", "+y", "-y", "+z", "-z"); a face is selected
 	// when its outward normal lies within 45 degrees of one of them.
@@ -587,14 +957,21 @@ type Exposure struct {
 	SurroundingsC *float64 `protobuf:"fixed64,6,opt,name=surroundings_c,json=surroundingsC,proto3,oneof" json:"surroundings_c,omitempty"`
 	// Changes in the exposure over time, in increasing at_s order; each
 	// applies from its time on. Unset fields keep their previous value.
-	Schedule      []*ExposureChange `protobuf:"bytes,7,rep,name=schedule,proto3" json:"schedule,omitempty"`
+	Schedule []*ExposureChange `protobuf:"bytes,7,rep,name=schedule,proto3" json:"schedule,omitempty"`
+	// Names of STL solid blocks whose faces this entry selects.
+	Solids []string `protobuf:"bytes,8,rep,name=solids,proto3" json:"solids,omitempty"`
+	// Names of bodies whose faces this entry selects (a subtracted body's
+	// faces are the cavity it leaves).
+	Bodies []string `protobuf:"bytes,9,rep,name=bodies,proto3" json:"bodies,omitempty"`
+	// Selects the faces whose centre lies in this box.
+	Region        *Region `protobuf:"bytes,10,opt,name=region,proto3" json:"region,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
 
 func (x *Exposure) Reset() {
 	*x = Exposure{}
-	mi := &file_soak_v1_spec_proto_msgTypes[7]
+	mi := &file_soak_v1_spec_proto_msgTypes[11]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -606,7 +983,7 @@ func (x *Exposure) String() string {
 func (*Exposure) ProtoMessage() {}
 
 func (x *Exposure) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[7]
+	mi := &file_soak_v1_spec_proto_msgTypes[11]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -619,7 +996,7 @@ func (x *Exposure) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Exposure.ProtoReflect.Descriptor instead.
 func (*Exposure) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{7}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{11}
 }
 
 func (x *Exposure) GetSurfaces() string {
@@ -671,6 +1048,80 @@ func (x *Exposure) GetSchedule() []*ExposureChange {
 	return nil
 }
 
+func (x *Exposure) GetSolids() []string {
+	if x != nil {
+		return x.Solids
+	}
+	return nil
+}
+
+func (x *Exposure) GetBodies() []string {
+	if x != nil {
+		return x.Bodies
+	}
+	return nil
+}
+
+func (x *Exposure) GetRegion() *Region {
+	if x != nil {
+		return x.Region
+	}
+	return nil
+}
+
+// Region is an axis-aligned box, m.
+type Region struct {
+	state         protoimpl.MessageState `protogen:"open.v1"`
+	MinM          []float64              `protobuf:"fixed64,1,rep,packed,name=min_m,json=minM,proto3" json:"min_m,omitempty"`
+	MaxM          []float64              `protobuf:"fixed64,2,rep,packed,name=max_m,json=maxM,proto3" json:"max_m,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Region) Reset() {
+	*x = Region{}
+	mi := &file_soak_v1_spec_proto_msgTypes[12]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Region) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Region) ProtoMessage() {}
+
+func (x *Region) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_spec_proto_msgTypes[12]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Region.ProtoReflect.Descriptor instead.
+func (*Region) Descriptor() ([]byte, []int) {
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{12}
+}
+
+func (x *Region) GetMinM() []float64 {
+	if x != nil {
+		return x.MinM
+	}
+	return nil
+}
+
+func (x *Region) GetMaxM() []float64 {
+	if x != nil {
+		return x.MaxM
+	}
+	return nil
+}
+
 type ExposureChange struct {
 	state         protoimpl.MessageState `protogen:"open.v1"`
 	AtS           float64                `protobuf:"fixed64,1,opt,name=at_s,json=atS,proto3" json:"at_s,omitempty"`
@@ -684,7 +1135,7 @@ type ExposureChange struct {
 
 func (x *ExposureChange) Reset() {
 	*x = ExposureChange{}
-	mi := &file_soak_v1_spec_proto_msgTypes[8]
+	mi := &file_soak_v1_spec_proto_msgTypes[13]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -696,7 +1147,7 @@ func (x *ExposureChange) String() string {
 func (*ExposureChange) ProtoMessage() {}
 
 func (x *ExposureChange) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[8]
+	mi := &file_soak_v1_spec_proto_msgTypes[13]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -709,7 +1160,7 @@ func (x *ExposureChange) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ExposureChange.ProtoReflect.Descriptor instead.
 func (*ExposureChange) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{8}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{13}
 }
 
 func (x *ExposureChange) GetAtS() float64 {
@@ -759,7 +1210,7 @@ type Probe struct {
 
 func (x *Probe) Reset() {
 	*x = Probe{}
-	mi := &file_soak_v1_spec_proto_msgTypes[9]
+	mi := &file_soak_v1_spec_proto_msgTypes[14]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -771,7 +1222,7 @@ func (x *Probe) String() string {
 func (*Probe) ProtoMessage() {}
 
 func (x *Probe) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[9]
+	mi := &file_soak_v1_spec_proto_msgTypes[14]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -784,7 +1235,7 @@ func (x *Probe) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Probe.ProtoReflect.Descriptor instead.
 func (*Probe) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{9}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{14}
 }
 
 func (x *Probe) GetName() string {
@@ -817,7 +1268,7 @@ type Milestone struct {
 
 func (x *Milestone) Reset() {
 	*x = Milestone{}
-	mi := &file_soak_v1_spec_proto_msgTypes[10]
+	mi := &file_soak_v1_spec_proto_msgTypes[15]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -829,7 +1280,7 @@ func (x *Milestone) String() string {
 func (*Milestone) ProtoMessage() {}
 
 func (x *Milestone) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[10]
+	mi := &file_soak_v1_spec_proto_msgTypes[15]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -842,7 +1293,7 @@ func (x *Milestone) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Milestone.ProtoReflect.Descriptor instead.
 func (*Milestone) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{10}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{15}
 }
 
 func (x *Milestone) GetName() string {
@@ -889,7 +1340,7 @@ type TimeStepping struct {
 
 func (x *TimeStepping) Reset() {
 	*x = TimeStepping{}
-	mi := &file_soak_v1_spec_proto_msgTypes[11]
+	mi := &file_soak_v1_spec_proto_msgTypes[16]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -901,7 +1352,7 @@ func (x *TimeStepping) String() string {
 func (*TimeStepping) ProtoMessage() {}
 
 func (x *TimeStepping) ProtoReflect() protoreflect.Message {
-	mi := &file_soak_v1_spec_proto_msgTypes[11]
+	mi := &file_soak_v1_spec_proto_msgTypes[16]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -914,7 +1365,7 @@ func (x *TimeStepping) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use TimeStepping.ProtoReflect.Descriptor instead.
 func (*TimeStepping) Descriptor() ([]byte, []int) {
-	return file_soak_v1_spec_proto_rawDescGZIP(), []int{11}
+	return file_soak_v1_spec_proto_rawDescGZIP(), []int{16}
 }
 
 func (x *TimeStepping) GetScheme() string {
@@ -949,7 +1400,7 @@ var File_soak_v1_spec_proto protoreflect.FileDescriptor
 
 const file_soak_v1_spec_proto_rawDesc = "" +
 	"\n" +
-	"\x12soak/v1/spec.proto\x12\asoak.v1\"\xd0\x04\n" +
+	"\x12soak/v1/spec.proto\x12\asoak.v1\"\x8e\x06\n" +
 	"\aJobSpec\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12!\n" +
 	"\x04part\x18\x02 \x01(\v2\r.soak.v1.PartR\x04part\x12&\n" +
@@ -967,17 +1418,46 @@ const file_soak_v1_spec_proto_rawDesc = "" +
 	"\x12stop_at_milestones\x18\v \x01(\bR\x10stopAtMilestones\x12:\n" +
 	"\rtime_stepping\x18\f \x01(\v2\x15.soak.v1.TimeSteppingR\ftimeStepping\x12\x1f\n" +
 	"\vsnapshots_s\x18\r \x03(\x01R\n" +
-	"snapshotsS\x12\x16\n" +
-	"\x06refine\x18( \x01(\bR\x06refineB\x0f\n" +
+	"snapshotsS\x12=\n" +
+	"\tmaterials\x18\x0e \x03(\v2\x1f.soak.v1.JobSpec.MaterialsEntryR\tmaterials\x12,\n" +
+	"\bcontacts\x18\x0f \x03(\v2\x10.soak.v1.ContactR\bcontacts\x12\x16\n" +
+	"\x06refine\x18( \x01(\bR\x06refine\x1aO\n" +
+	"\x0eMaterialsEntry\x12\x10\n" +
+	"\x03key\x18\x01 \x01(\tR\x03key\x12'\n" +
+	"\x05value\x18\x02 \x01(\v2\x11.soak.v1.MaterialR\x05value:\x028\x01B\x0f\n" +
 	"\r_cells_acrossB\x0e\n" +
 	"\f_cell_size_mB\f\n" +
 	"\n" +
-	"_initial_c\"\x8d\x01\n" +
+	"_initial_c\"\xb4\x01\n" +
 	"\x04Part\x12)\n" +
 	"\x06sphere\x18\x01 \x01(\v2\x0f.soak.v1.SphereH\x00R\x06sphere\x12/\n" +
 	"\bcylinder\x18\x02 \x01(\v2\x11.soak.v1.CylinderH\x00R\bcylinder\x12 \n" +
-	"\x03box\x18\x03 \x01(\v2\f.soak.v1.BoxH\x00R\x03boxB\a\n" +
-	"\x05shape\"'\n" +
+	"\x03box\x18\x03 \x01(\v2\f.soak.v1.BoxH\x00R\x03box\x12%\n" +
+	"\x06bodies\x18\x04 \x03(\v2\r.soak.v1.BodyR\x06bodiesB\a\n" +
+	"\x05shape\"\xa9\x02\n" +
+	"\x04Body\x12\x12\n" +
+	"\x04name\x18\x01 \x01(\tR\x04name\x12)\n" +
+	"\x06sphere\x18\x02 \x01(\v2\x0f.soak.v1.SphereH\x00R\x06sphere\x12/\n" +
+	"\bcylinder\x18\x03 \x01(\v2\x11.soak.v1.CylinderH\x00R\bcylinder\x12 \n" +
+	"\x03box\x18\x04 \x01(\v2\f.soak.v1.BoxH\x00R\x03box\x12$\n" +
+	"\x03stl\x18\x05 \x01(\v2\x10.soak.v1.StlFileH\x00R\x03stl\x12(\n" +
+	"\x05place\x18\x06 \x01(\v2\x12.soak.v1.PlacementR\x05place\x12\x1a\n" +
+	"\bsubtract\x18\a \x01(\bR\bsubtract\x12\x1a\n" +
+	"\bmaterial\x18\b \x01(\tR\bmaterialB\a\n" +
+	"\x05shape\"K\n" +
+	"\tPlacement\x12\x1f\n" +
+	"\vtranslate_m\x18\x01 \x03(\x01R\n" +
+	"translateM\x12\x1d\n" +
+	"\n" +
+	"rotate_deg\x18\x02 \x03(\x01R\trotateDeg\"j\n" +
+	"\aStlFile\x12\x12\n" +
+	"\x04file\x18\x01 \x01(\tR\x04file\x12\x14\n" +
+	"\x05units\x18\x02 \x01(\tR\x05units\x12!\n" +
+	"\frepair_holes\x18\x03 \x01(\rR\vrepairHoles\x12\x12\n" +
+	"\x04data\x18\x04 \x01(\fR\x04data\"S\n" +
+	"\aContact\x12\x1c\n" +
+	"\tmaterials\x18\x01 \x03(\tR\tmaterials\x12*\n" +
+	"\x11conductance_w_m2k\x18\x02 \x01(\x01R\x0fconductanceWM2k\"'\n" +
 	"\x06Sphere\x12\x1d\n" +
 	"\n" +
 	"diameter_m\x18\x01 \x01(\x01R\tdiameterM\"X\n" +
@@ -999,7 +1479,7 @@ const file_soak_v1_spec_proto_rawDesc = "" +
 	"\n" +
 	"TablePoint\x12\x15\n" +
 	"\x06temp_c\x18\x01 \x01(\x01R\x05tempC\x12\x14\n" +
-	"\x05value\x18\x02 \x01(\x01R\x05value\"\xa8\x02\n" +
+	"\x05value\x18\x02 \x01(\x01R\x05value\"\x81\x03\n" +
 	"\bExposure\x12\x1a\n" +
 	"\bsurfaces\x18\x01 \x01(\tR\bsurfaces\x12\x16\n" +
 	"\x06facing\x18\x02 \x03(\tR\x06facing\x12\x16\n" +
@@ -1009,11 +1489,18 @@ const file_soak_v1_spec_proto_rawDesc = "" +
 	"emissivity\x18\x05 \x01(\x01H\x01R\n" +
 	"emissivity\x88\x01\x01\x12*\n" +
 	"\x0esurroundings_c\x18\x06 \x01(\x01H\x02R\rsurroundingsC\x88\x01\x01\x123\n" +
-	"\bschedule\x18\a \x03(\v2\x17.soak.v1.ExposureChangeR\bscheduleB\n" +
+	"\bschedule\x18\a \x03(\v2\x17.soak.v1.ExposureChangeR\bschedule\x12\x16\n" +
+	"\x06solids\x18\b \x03(\tR\x06solids\x12\x16\n" +
+	"\x06bodies\x18\t \x03(\tR\x06bodies\x12'\n" +
+	"\x06region\x18\n" +
+	" \x01(\v2\x0f.soak.v1.RegionR\x06regionB\n" +
 	"\n" +
 	"\b_fluid_cB\r\n" +
 	"\v_emissivityB\x11\n" +
-	"\x0f_surroundings_c\"\xe9\x01\n" +
+	"\x0f_surroundings_c\"2\n" +
+	"\x06Region\x12\x13\n" +
+	"\x05min_m\x18\x01 \x03(\x01R\x04minM\x12\x13\n" +
+	"\x05max_m\x18\x02 \x03(\x01R\x04maxM\"\xe9\x01\n" +
 	"\x0eExposureChange\x12\x11\n" +
 	"\x04at_s\x18\x01 \x01(\x01R\x03atS\x12\x1b\n" +
 	"\ah_w_m2k\x18\x02 \x01(\x01H\x00R\x05hWM2k\x88\x01\x01\x12\x1c\n" +
@@ -1063,39 +1550,55 @@ func file_soak_v1_spec_proto_rawDescGZIP() []byte {
 	return file_soak_v1_spec_proto_rawDescData
 }
 
-var file_soak_v1_spec_proto_msgTypes = make([]protoimpl.MessageInfo, 12)
+var file_soak_v1_spec_proto_msgTypes = make([]protoimpl.MessageInfo, 18)
 var file_soak_v1_spec_proto_goTypes = []any{
 	(*JobSpec)(nil),        // 0: soak.v1.JobSpec
 	(*Part)(nil),           // 1: soak.v1.Part
-	(*Sphere)(nil),         // 2: soak.v1.Sphere
-	(*Cylinder)(nil),       // 3: soak.v1.Cylinder
-	(*Box)(nil),            // 4: soak.v1.Box
-	(*Material)(nil),       // 5: soak.v1.Material
-	(*TablePoint)(nil),     // 6: soak.v1.TablePoint
-	(*Exposure)(nil),       // 7: soak.v1.Exposure
-	(*ExposureChange)(nil), // 8: soak.v1.ExposureChange
-	(*Probe)(nil),          // 9: soak.v1.Probe
-	(*Milestone)(nil),      // 10: soak.v1.Milestone
-	(*TimeStepping)(nil),   // 11: soak.v1.TimeStepping
+	(*Body)(nil),           // 2: soak.v1.Body
+	(*Placement)(nil),      // 3: soak.v1.Placement
+	(*StlFile)(nil),        // 4: soak.v1.StlFile
+	(*Contact)(nil),        // 5: soak.v1.Contact
+	(*Sphere)(nil),         // 6: soak.v1.Sphere
+	(*Cylinder)(nil),       // 7: soak.v1.Cylinder
+	(*Box)(nil),            // 8: soak.v1.Box
+	(*Material)(nil),       // 9: soak.v1.Material
+	(*TablePoint)(nil),     // 10: soak.v1.TablePoint
+	(*Exposure)(nil),       // 11: soak.v1.Exposure
+	(*Region)(nil),         // 12: soak.v1.Region
+	(*ExposureChange)(nil), // 13: soak.v1.ExposureChange
+	(*Probe)(nil),          // 14: soak.v1.Probe
+	(*Milestone)(nil),      // 15: soak.v1.Milestone
+	(*TimeStepping)(nil),   // 16: soak.v1.TimeStepping
+	nil,                    // 17: soak.v1.JobSpec.MaterialsEntry
 }
 var file_soak_v1_spec_proto_depIdxs = []int32{
 	1,  // 0: soak.v1.JobSpec.part:type_name -> soak.v1.Part
-	5,  // 1: soak.v1.JobSpec.material:type_name -> soak.v1.Material
-	7,  // 2: soak.v1.JobSpec.exposure:type_name -> soak.v1.Exposure
-	9,  // 3: soak.v1.JobSpec.probes:type_name -> soak.v1.Probe
-	10, // 4: soak.v1.JobSpec.milestones:type_name -> soak.v1.Milestone
-	11, // 5: soak.v1.JobSpec.time_stepping:type_name -> soak.v1.TimeStepping
-	2,  // 6: soak.v1.Part.sphere:type_name -> soak.v1.Sphere
-	3,  // 7: soak.v1.Part.cylinder:type_name -> soak.v1.Cylinder
-	4,  // 8: soak.v1.Part.box:type_name -> soak.v1.Box
-	6,  // 9: soak.v1.Material.conductivity_table:type_name -> soak.v1.TablePoint
-	6,  // 10: soak.v1.Material.specific_heat_table:type_name -> soak.v1.TablePoint
-	8,  // 11: soak.v1.Exposure.schedule:type_name -> soak.v1.ExposureChange
-	12, // [12:12] is the sub-list for method output_type
-	12, // [12:12] is the sub-list for method input_type
-	12, // [12:12] is the sub-list for extension type_name
-	12, // [12:12] is the sub-list for extension extendee
-	0,  // [0:12] is the sub-list for field type_name
+	9,  // 1: soak.v1.JobSpec.material:type_name -> soak.v1.Material
+	11, // 2: soak.v1.JobSpec.exposure:type_name -> soak.v1.Exposure
+	14, // 3: soak.v1.JobSpec.probes:type_name -> soak.v1.Probe
+	15, // 4: soak.v1.JobSpec.milestones:type_name -> soak.v1.Milestone
+	16, // 5: soak.v1.JobSpec.time_stepping:type_name -> soak.v1.TimeStepping
+	17, // 6: soak.v1.JobSpec.materials:type_name -> soak.v1.JobSpec.MaterialsEntry
+	5,  // 7: soak.v1.JobSpec.contacts:type_name -> soak.v1.Contact
+	6,  // 8: soak.v1.Part.sphere:type_name -> soak.v1.Sphere
+	7,  // 9: soak.v1.Part.cylinder:type_name -> soak.v1.Cylinder
+	8,  // 10: soak.v1.Part.box:type_name -> soak.v1.Box
+	2,  // 11: soak.v1.Part.bodies:type_name -> soak.v1.Body
+	6,  // 12: soak.v1.Body.sphere:type_name -> soak.v1.Sphere
+	7,  // 13: soak.v1.Body.cylinder:type_name -> soak.v1.Cylinder
+	8,  // 14: soak.v1.Body.box:type_name -> soak.v1.Box
+	4,  // 15: soak.v1.Body.stl:type_name -> soak.v1.StlFile
+	3,  // 16: soak.v1.Body.place:type_name -> soak.v1.Placement
+	10, // 17: soak.v1.Material.conductivity_table:type_name -> soak.v1.TablePoint
+	10, // 18: soak.v1.Material.specific_heat_table:type_name -> soak.v1.TablePoint
+	13, // 19: soak.v1.Exposure.schedule:type_name -> soak.v1.ExposureChange
+	12, // 20: soak.v1.Exposure.region:type_name -> soak.v1.Region
+	9,  // 21: soak.v1.JobSpec.MaterialsEntry.value:type_name -> soak.v1.Material
+	22, // [22:22] is the sub-list for method output_type
+	22, // [22:22] is the sub-list for method input_type
+	22, // [22:22] is the sub-list for extension type_name
+	22, // [22:22] is the sub-list for extension extendee
+	0,  // [0:22] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_spec_proto_init() }
@@ -1109,18 +1612,24 @@ func file_soak_v1_spec_proto_init() {
 		(*Part_Cylinder)(nil),
 		(*Part_Box)(nil),
 	}
-	file_soak_v1_spec_proto_msgTypes[5].OneofWrappers = []any{}
-	file_soak_v1_spec_proto_msgTypes[7].OneofWrappers = []any{}
-	file_soak_v1_spec_proto_msgTypes[8].OneofWrappers = []any{}
-	file_soak_v1_spec_proto_msgTypes[10].OneofWrappers = []any{}
+	file_soak_v1_spec_proto_msgTypes[2].OneofWrappers = []any{
+		(*Body_Sphere)(nil),
+		(*Body_Cylinder)(nil),
+		(*Body_Box)(nil),
+		(*Body_Stl)(nil),
+	}
+	file_soak_v1_spec_proto_msgTypes[9].OneofWrappers = []any{}
 	file_soak_v1_spec_proto_msgTypes[11].OneofWrappers = []any{}
+	file_soak_v1_spec_proto_msgTypes[13].OneofWrappers = []any{}
+	file_soak_v1_spec_proto_msgTypes[15].OneofWrappers = []any{}
+	file_soak_v1_spec_proto_msgTypes[16].OneofWrappers = []any{}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_soak_v1_spec_proto_rawDesc), len(file_soak_v1_spec_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   12,
+			NumMessages:   18,
 			NumExtensions: 0,
 			NumServices:   0,
 		},

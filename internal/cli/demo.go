@@ -15,6 +15,7 @@ import (
 	"soakfarm/farmclient"
 	"soakfarm/internal/localfarm"
 	soakv1 "soakfarm/proto/soak/v1"
+	"soakfarm/report"
 )
 
 func newDemoCmd(s streams) *cobra.Command {
@@ -95,8 +96,9 @@ func runDemo(ctx context.Context, s streams, outDir string, workers int) error {
 		if _, err := fetchJob(ctx, c, o.id, dir); err != nil {
 			return err
 		}
-		fmt.Fprintf(s.out, "%-26s %s  -> %s\n", cases[i].Slug, milestoneLine(o.summary), dir)
+		fmt.Fprintf(s.out, "%-26s %s [%s]  -> %s\n", cases[i].Slug, milestoneLine(o.summary), o.summary.GetVerification().GetVerdict(), dir)
 	}
+	fmt.Fprintf(s.out, "Each folder holds probes.csv, summary.json (with its verification), history.png and crosscheck.png.\nCAUTION: %s\n", report.Caution)
 	return outcomeError(outcomes)
 }
 

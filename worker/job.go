@@ -94,15 +94,13 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 		w.ended(q, c, job)
 		return
 	}
-	log.Info("job started", "attempt", c.attempt, "delivery", md.NumDelivered)
-	c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Started{Started: &soakv1.JobStarted{Worker: c.worker, Attempt: c.attempt}}})
-
+	// From here a cancel notice reaches the run; one sent between the
+	// claim and now is caught by the first heartbeat.
 	jobCtx, cancel := context.WithCancelCause(runCtx)
 	defer cancel(nil)
 	defer w.track(id, cancel)()
-	if job.GetCancelRequested() { // asked between claim and track
-		cancel(errCancelRequested)
-	}
+	log.Info("job started", "attempt", c.attempt, "delivery", md.NumDelivered)
+	c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Started{Started: &soakv1.JobStarted{Worker: c.worker, Attempt: c.attempt}}})
 	heartbeatDone := make(chan struct{})
 	var heartbeats sync.WaitGroup
 	heartbeats.Go(func() { c.heartbeat(q, cancel, heartbeatDone) })

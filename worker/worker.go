@@ -57,8 +57,12 @@ type Worker struct {
 	log *slog.Logger
 
 	mu      sync.Mutex
-	running map[string]context.CancelCauseFunc
+	running map[string]*runningJob
 }
+
+// runningJob is a job in hand. A pointer identifies one run, since a
+// redelivery may hand this worker a job it still runs.
+type runningJob struct{ cancel context.CancelCauseFunc }
 
 // Why a running job's context ends.
 var (
@@ -96,7 +100,7 @@ func New(nc *nats.Conn, cfg Config) *Worker {
 	return &Worker{
 		nc: nc, cfg: cfg,
 		log:     cfg.Logger.With("worker", cfg.Name),
-		running: make(map[string]context.CancelCauseFunc),
+		running: make(map[string]*runningJob),
 	}
 }
 
@@ -196,12 +200,15 @@ func fetchOne(ctx context.Context, cons jetstream.Consumer) (jetstream.Msg, erro
 // track registers a running job's cancel function; the returned func
 // unregisters it.
 func (w *Worker) track(id string, cancel context.CancelCauseFunc) func() {
+	run := &runningJob{cancel: cancel}
 	w.mu.Lock()
-	w.running[id] = cancel
+	w.running[id] = run
 	w.mu.Unlock()
 	return func() {
 		w.mu.Lock()
-		delete(w.running, id)
+		if w.running[id] == run {
+			delete(w.running, id)
+		}
 		w.mu.Unlock()
 	}
 }
@@ -209,10 +216,10 @@ func (w *Worker) track(id string, cancel context.CancelCauseFunc) func() {
 // cancel stops the job id if this worker runs it.
 func (w *Worker) cancel(id string, cause error) {
 	w.mu.Lock()
-	cancel := w.running[id]
+	run := w.running[id]
 	w.mu.Unlock()
-	if cancel != nil {
-		cancel(cause)
+	if run != nil {
+		run.cancel(cause)
 	}
 }
 

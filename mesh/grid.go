@@ -35,6 +35,23 @@ type Grid struct {
 
 	// Groups are the surface groups the faces belong to; see BoundaryFace.Group.
 	Groups []Group
+
+	// Bodies lists the part's bodies (one, "part", for a plain solid) with
+	// their volumes; see BoundaryFace.Body.
+	Bodies []BodyVolume
+}
+
+// BodyVolume is one body's own volume against the cells it has in the grid.
+type BodyVolume struct {
+	Name     string
+	Subtract bool
+	Region   uint8
+	// TrueVolume is the body's own volume as given (its Volume), m³,
+	// whatever other bodies overlap or cut from it.
+	TrueVolume float64
+	// ModelVolume is the volume of the cells the body decided last: the
+	// part cells it added, or for a subtracting body the cells it removed, m³.
+	ModelVolume float64
 }
 
 // BoundaryFace is one exposed cell face.
@@ -42,6 +59,10 @@ type BoundaryFace struct {
 	Cell  int32  // index of the part cell that owns the face
 	Dir   uint8  // MinusX … PlusZ: the side of the cell the face is on
 	Group uint16 // index into Grid.Groups
+	Body  uint16 // index into Grid.Bodies: the body whose surface the face stands for
+	// Solid is the index of the named solid block (see stl.Body.FaceGroups)
+	// of an STL body nearest the face; 0 for other bodies.
+	Solid uint16
 
 	// Area is the true surface area this face stands for, m². A voxel face
 	// has area CellSize², but on a curved or sloping surface the staircase

@@ -1,14 +1,137 @@
 package mesh
 
-import "fmt"
+import (
+	"fmt"
+	"slices"
+	"strings"
 
-// Selector picks part of the surface for one exposure: every face (All) or
-// the faces whose true outward normal lies within 45° of one of the listed
-// directions (MinusX … PlusZ).
+	"soakfarm/mesh/stl"
+)
+
+// Selector picks part of the surface for one exposure: every face (All),
+// or the faces that meet every criterion given: true outward normal within
+// 45° of one of the Facing directions (MinusX … PlusZ), coming from one of
+// the named Bodies (a subtracting body's faces are its cavity), lying on
+// one of the named STL Solids (the solid blocks of STL bodies), or having
+// their centre inside Region.
 type Selector struct {
 	All    bool
 	Facing []int
+	Bodies []string
+	Solids []string
+	Region *Region
 }
+
+// Region is an axis-aligned box, m.
+type Region struct {
+	Min, Max [3]float64
+}
+
+func (r *Region) contains(p [3]float64) bool {
+	for d := range p {
+		if p[d] < r.Min[d] || p[d] > r.Max[d] {
+			return false
+		}
+	}
+	return true
+}
+
+// matcher is a Selector resolved against an assembly's bodies: nil sets
+// mean any.
+type matcher struct {
+	all    bool
+	facing *[6]bool
+	bodies []bool   // per body
+	solids [][]bool // per body, per named surface
+	region *Region
+}
+
+// resolve checks the names a selector uses against the bodies.
+func (s Selector) resolve(bodies []Body, path string) (matcher, []error) {
+	m := matcher{all: s.All, region: s.Region}
+	var errs []error
+	if len(s.Facing) > 0 {
+		set := s.facingSet()
+		m.facing = &set
+	}
+	if len(s.Bodies) > 0 {
+		m.bodies = make([]bool, len(bodies))
+		for i, name := range s.Bodies {
+			found := false
+			for b := range bodies {
+				if bodies[b].Name == name {
+					m.bodies[b], found = true, true
+				}
+			}
+			if !found {
+				errs = append(errs, fmt.Errorf("%s.Bodies[%d]: no body named %q; the bodies are %s", path, i, name, bodyNames(bodies)))
+			}
+		}
+	}
+	if len(s.Solids) > 0 {
+		m.solids = make([][]bool, len(bodies))
+		var known []string
+		for b := range bodies {
+			if sb, ok := bodies[b].Solid.(*stl.Body); ok {
+				groups := sb.FaceGroups()
+				m.solids[b] = make([]bool, len(groups))
+				for k, fg := range groups {
+					known = append(known, fg.Name)
+					m.solids[b][k] = slices.Contains(s.Solids, fg.Name)
+				}
+			}
+		}
+		for i, name := range s.Solids {
+			if !slices.Contains(known, name) {
+				list := "none: no body is an STL mesh"
+				if len(known) > 0 {
+					list = quoteAll(known)
+				}
+				errs = append(errs, fmt.Errorf("%s.Solids[%d]: no STL solid named %q; the named solids are %s", path, i, name, list))
+			}
+		}
+	}
+	return m, errs
+}
+
+func bodyNames(bodies []Body) string {
+	names := make([]string, len(bodies))
+	for i, b := range bodies {
+		names[i] = b.Name
+	}
+	return quoteAll(names)
+}
+
+func quoteAll(names []string) string {
+	q := make([]string, len(names))
+	for i, n := range names {
+		q[i] = fmt.Sprintf("%q", n)
+	}
+	return strings.Join(q, ", ")
+}
+
+// matches reports whether a face of body b, named surface solid, surface
+// piece and centre at is selected.
+func (m *matcher) matches(b, solid, piece int, at [3]float64) bool {
+	switch {
+	case m.all:
+		return true
+	case m.facing != nil && (piece == restPiece || !m.facing[piece]):
+		return false
+	case m.bodies != nil && !m.bodies[b]:
+		return false
+	case m.solids != nil && (m.solids[b] == nil || solid >= len(m.solids[b]) || !m.solids[b][solid]):
+		return false
+	case m.region != nil && !m.region.contains(at):
+		return false
+	}
+	return true
+}
+
+// byPiece reports whether the matcher decides by normal direction alone
+// on a part of the one body given, so that the seven surface pieces sort
+// faces and true areas alike.
+func (m *matcher) byPiece() bool { return m.solids == nil && m.region == nil }
 
 // The surface is split into seven pieces by normal direction: the six 45°
 // cones around the axis directions (indices MinusX … PlusZ) and the rest.
@@ -31,20 +154,23 @@ func (s Selector) facingSet() [6]bool {
 	return set
 }
 
-// selects reports whether the selector takes in surface piece p.
-func (s Selector) selects(p int) bool {
-	if s.All {
-		return true
-	}
-	return p != restPiece && s.facingSet()[p]
-}
-
 // validate reports a selector that selects nothing or names an unknown
 // direction; path is its name in messages.
 func (s Selector) validate(path string) []error {
 	var errs []error
-	if !s.All && len(s.Facing) == 0 {
-		errs = append(errs, fmt.Errorf("%s: selects no surface; set All or list Facing directions", path))
+	others := len(s.Facing) > 0 || len(s.Bodies) > 0 || len(s.Solids) > 0 || s.Region != nil
+	switch {
+	case !s.All && !others:
+		errs = append(errs, fmt.Errorf("%s: selects no surface; set All, or Facing, Bodies, Solids or Region", path))
+	case s.All && others:
+		errs = append(errs, fmt.Errorf("%s: All selects every face; leave Facing, Bodies, Solids and Region out", path))
+	}
+	if r := s.Region; r != nil {
+		for d := range 3 {
+			if !(r.Min[d] <= r.Max[d]) {
+				errs = append(errs, fmt.Errorf("%s.Region: Min[%d] = %g must not exceed Max[%d] = %g", path, d, r.Min[d], d, r.Max[d]))
+			}
+		}
 	}
 	for i, d := range s.Facing {
 		if d < MinusX || d > PlusZ {
@@ -67,14 +193,15 @@ func classifyNormal(n [3]float64) int {
 	return restPiece
 }
 
-// assignPieces returns, per surface piece, the index of the last selector
-// that selects it, or len(selectors) (the insulated group) when none does.
-func assignPieces(selectors []Selector) [numPieces]int {
+// assignPieces returns, per surface piece, the index of the last matcher
+// that selects it, or len(matchers) (the insulated group) when none does.
+// Only for matchers that decide by piece (see byPiece) on one body.
+func assignPieces(matchers []matcher) [numPieces]int {
 	var groupOf [numPieces]int
 	for p := range groupOf {
-		groupOf[p] = len(selectors)
-		for i, s := range selectors {
-			if s.selects(p) {
+		groupOf[p] = len(matchers)
+		for i := range matchers {
+			if matchers[i].matches(0, 0, p, [3]float64{}) {
 				groupOf[p] = i
 			}
 		}
@@ -84,17 +211,16 @@ func assignPieces(selectors []Selector) [numPieces]int {
 
 // pieceAreas returns the exact true area of each surface piece, or false
 // when the solid cannot tell. A solid that only knows its total area still
-// gives exact group areas when no selector looks at directions: then every
+// gives exact group areas when no matcher looks at directions: then every
 // piece goes to the same group, so the total is put on one piece.
-func pieceAreas(s Solid, selectors []Selector) (areas [numPieces]float64, exact bool) {
-	if fs, ok := s.(FacingAreaSolid); ok {
-		facing, rest := fs.FacingAreas()
+func pieceAreas(s Solid, matchers []matcher) (areas [numPieces]float64, exact bool) {
+	if facing, rest, ok := facingAreas(s); ok {
 		copy(areas[:], facing[:])
 		areas[restPiece] = rest
 		return areas, true
 	}
-	for _, sel := range selectors {
-		if !sel.All {
+	for _, m := range matchers {
+		if m.facing != nil {
 			return areas, false
 		}
 	}
@@ -104,14 +230,20 @@ func pieceAreas(s Solid, selectors []Selector) (areas [numPieces]float64, exact 
 
 // SelectedArea returns the true area of the part of s's surface that sel
 // selects, and whether that area is exact (false, with area 0, for a
-// direction selection on a solid that does not implement FacingAreaSolid).
+// selection the solid cannot measure: by direction on a solid that does
+// not implement FacingAreaSolid, by STL solid or by region).
 func SelectedArea(s Solid, sel Selector) (area float64, exact bool) {
-	areas, exact := pieceAreas(s, []Selector{sel})
+	bodies := bodiesOf(s)
+	m, errs := sel.resolve(bodies, "selector")
+	if len(bodies) != 1 || bodies[0].Subtract || len(errs) > 0 || !m.byPiece() {
+		return 0, false
+	}
+	areas, exact := pieceAreas(bodies[0].Solid, []matcher{m})
 	if !exact {
 		return 0, false
 	}
 	for p, a := range areas {
-		if sel.selects(p) {
+		if m.matches(0, 0, p, [3]float64{}) {
 			area += a
 		}
 	}

@@ -131,6 +131,15 @@ func (b *Body) FacingAreas() (facing [6]float64, rest float64) {
 	return facing, rest
 }
 
+// EachTriangle calls fn for every triangle that bounds the body (collapsed
+// ones left out) with its corners, outward unit normal, face group (see
+// FaceGroups) and area.
+func (b *Body) EachTriangle(fn func(corners [3][3]float64, normal [3]float64, group int, area float64)) {
+	for _, t := range b.tris {
+		fn(t.v, t.normal, int(t.group), norm(areaVector(t.v)))
+	}
+}
+
 // FaceGroups returns the named surfaces, indexed as SurfaceAt's group.
 func (b *Body) FaceGroups() []FaceGroup { return append([]FaceGroup(nil), b.groups...) }
 

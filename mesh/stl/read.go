@@ -92,6 +92,16 @@ type placement struct {
 
 var unitScale = map[string]float64{"m": 1, "mm": 1e-3, "in": 0.0254}
 
+// UnitScale returns the metres per file unit of units ("m", "mm" or "in";
+// "" is "m"), and false for any other unit.
+func UnitScale(units string) (float64, bool) {
+	if units == "" {
+		units = "m"
+	}
+	s, ok := unitScale[units]
+	return s, ok
+}
+
 func (o Options) placement() (placement, error) {
 	units := o.Units
 	if units == "" {
@@ -115,15 +125,17 @@ func (o Options) placement() (placement, error) {
 			ErrOptions, o.MaxTriangles, o.MaxBytes, o.RepairHoles)
 	}
 	p := placement{units: units, scale: s}
-	p.rot = rotationXYZ(o.RotateDeg)
+	p.rot = RotationXYZ(o.RotateDeg)
 	for i := range 3 {
 		p.shift[i] = o.Translate[i] * s
 	}
 	return p, nil
 }
 
-// rotationXYZ returns Rz·Ry·Rx: the rotation about x is applied first.
-func rotationXYZ(deg [3]float64) [3][3]float64 {
+// RotationXYZ returns the rotation matrix Rz·Ry·Rx for angles in degrees
+// about x, y and z: the rotation about x is applied first. Exact quarter
+// turns give exact zeros.
+func RotationXYZ(deg [3]float64) [3][3]float64 {
 	rx, ry, rz := deg[0]*math.Pi/180, deg[1]*math.Pi/180, deg[2]*math.Pi/180
 	cx, sx := math.Cos(rx), math.Sin(rx)
 	cy, sy := math.Cos(ry), math.Sin(ry)

@@ -124,7 +124,7 @@ func hubDesign() (volume, area float64) {
 	n := float64(h.Bolts)
 	volume = (disc(h.FlangeRadius)*h.FlangeThickness + disc(h.HubRadius)*(h.Height-h.FlangeThickness) -
 		disc(h.BoreRadius)*h.Height - n*disc(h.BoltHoleRadius)*h.FlangeThickness) * mm3
-	ends := 2*(disc(h.FlangeRadius)-disc(h.BoreRadius)-n*disc(h.BoltHoleRadius))
+	ends := 2 * (disc(h.FlangeRadius) - disc(h.BoreRadius) - n*disc(h.BoltHoleRadius))
 	area = (ends + side(h.FlangeRadius, h.FlangeThickness) + side(h.HubRadius, h.Height-h.FlangeThickness) +
 		side(h.BoreRadius, h.Height) + n*side(h.BoltHoleRadius, h.FlangeThickness)) * mm2
 	return volume, area
@@ -299,4 +299,3 @@ func TestAssemblyInputErrors(t *testing.T) {
 		})
 	}
 }
-

@@ -72,6 +72,16 @@ type Problem struct {
 	// Threads is the number of goroutines for the linear algebra; 0 means
 	// runtime.GOMAXPROCS(0).
 	Threads int
+	// Contacts adds a contact conductance where cells of two regions
+	// touch; regions without one conduct through the harmonic mean alone.
+	Contacts []Contact
+}
+
+// Contact is the thermal contact conductance between two regions: a
+// resistance 1/(Conductance·A) in series with the half cells on each side.
+type Contact struct {
+	RegionA, RegionB uint8   // regions as in mesh.Grid.Region (1 or more)
+	Conductance      float64 // W/(m²·K)
 }
 
 // State is the solution after an accepted step. The solver reuses it

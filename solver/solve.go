@@ -104,6 +104,10 @@ type run struct {
 	// linearisation point of a Newton pass.
 	t, tn, tnm1, tstar, b, k []float64
 
+	// contactR[a][b] is the contact resistance of one cell face between
+	// regions a and b, K/W (0 for none); nil when the problem has no contacts.
+	contactR [][]float64
+
 	phases []*ExposurePhase // per surface group, for the current step
 	// faceFlow and faceConductance are each face's heat flow into its cell
 	// at the linearisation point and −d(flow)/dT there.
@@ -143,6 +147,16 @@ func newRun(p *Problem) *run {
 		}
 		if !m.SpecificHeat.isConstant() {
 			r.linear = false
+		}
+	}
+	if len(p.Contacts) > 0 {
+		r.contactR = make([][]float64, len(p.Materials)+1)
+		for i := range r.contactR {
+			r.contactR[i] = make([]float64, len(p.Materials)+1)
+		}
+		for _, c := range p.Contacts {
+			res := 1 / (c.Conductance * g.CellSize * g.CellSize)
+			r.contactR[c.RegionA][c.RegionB], r.contactR[c.RegionB][c.RegionA] = res, res
 		}
 	}
 	drive := 1.0 // K, floor for a problem with no driving difference
@@ -454,30 +468,40 @@ func (r *run) fill(w int) {
 	g, k := r.g, r.k
 	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
 	dx := g.CellSize
-	pair := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	harmonic := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	pair := func(c, nb int) float64 { return harmonic(k[c], k[nb]) }
+	if r.contactR != nil {
+		// A contact resistance between two regions adds in series.
+		pair = func(c, nb int) float64 {
+			gh := harmonic(k[c], k[nb])
+			if res := r.contactR[g.Region[c-r.pad]][g.Region[nb-r.pad]]; res > 0 && gh > 0 {
+				return 1 / (1/gh + res)
+			}
+			return gh
+		}
+	}
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
 	for _, sp := range r.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
 			m := &r.mats[g.Region[c-r.pad]-1]
-			kc := k[c]
 			var gxp, gxm, gyp, gym, gzp, gzm float64
 			if c+1 < sp.rowStart+nx {
-				gxp = pair(kc, k[c+1])
+				gxp = pair(c, c+1)
 			}
 			if c > sp.rowStart {
-				gxm = pair(kc, k[c-1])
+				gxm = pair(c, c-1)
 			}
 			if sp.y < ny-1 {
-				gyp = pair(kc, k[c+nx])
+				gyp = pair(c, c+nx)
 			}
 			if sp.y > 0 {
-				gym = pair(kc, k[c-nx])
+				gym = pair(c, c-nx)
 			}
 			if sp.z < nz-1 {
-				gzp = pair(kc, k[c+nxy])
+				gzp = pair(c, c+nxy)
 			}
 			if sp.z > 0 {
-				gzm = pair(kc, k[c-nxy])
+				gzm = pair(c, c-nxy)
 			}
 			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
 

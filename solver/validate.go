@@ -54,6 +54,20 @@ func (p *Problem) Validate() error {
 			errs.add("landings[%d]: must be a finite time ≥ 0, got %g s", i, l)
 		}
 	}
+	for i, c := range p.Contacts {
+		path := fmt.Sprintf("contacts[%d]", i)
+		for _, r := range []uint8{c.RegionA, c.RegionB} {
+			if r == 0 || int(r) > len(p.Materials) {
+				errs.add("%s: region %d has no material (%d materials)", path, r, len(p.Materials))
+			}
+		}
+		if c.RegionA == c.RegionB {
+			errs.add("%s: regions must differ, got %d twice", path, c.RegionA)
+		}
+		if !(c.Conductance > 0) || !finite(c.Conductance) {
+			errs.add("%s.conductance: must be positive, got %g W/(m²·K)", path, c.Conductance)
+		}
+	}
 	p.Stepping.validate(&errs)
 	if p.Threads < 0 {
 		errs.add("threads: must not be negative, got %d", p.Threads)

@@ -207,9 +207,6 @@ func missing(name string, err error) error {
 // JetStream returns the JetStream context the store uses.
 func (s *Store) JetStream() jetstream.JetStream { return s.js }
 
-// Conn returns the NATS connection the store uses.
-func (s *Store) Conn() *nats.Conn { return s.nc }
-
 // QueueConsumer binds to the shared work-queue consumer.
 func (s *Store) QueueConsumer(ctx context.Context) (jetstream.Consumer, error) {
 	c, err := s.js.Consumer(ctx, QueueStream, QueueConsumer)

@@ -1,5 +1,5 @@
 // Package partgen designs soakfarm's own test parts as triangle meshes and
-// writes them as STL: finely tessellated sphere, cylinder and tube, a
+// writes them as STL (and the hub also as a spec of bodies): finely tessellated sphere, cylinder and tube, a
 // flanged hub with bolt holes, a ribbed bracket, a torus for benchmarks,
 // and small deliberately broken files for the reader's error tests.
 //

@@ -80,7 +80,8 @@ const (
 	TruncateAtBytes = 84 + 50*7 + 20
 )
 
-// TestParts returns the files of testdata/parts, all in millimetres.
+// TestParts returns the files of testdata/parts, all in millimetres, and
+// the two specs of the hub (see HubSpecs).
 func TestParts() ([]File, error) {
 	var files []File
 	ascii := func(name string, blocks ...Block) error {
@@ -101,6 +102,8 @@ func TestParts() ([]File, error) {
 	if err != nil {
 		return nil, err
 	}
+	bodies, mesh := StandardHub().HubSpecs()
+	files = append(files, File{"hub-bodies.yaml", bodies}, File{"hub-stl.yaml", mesh})
 	bin("sphere.stl", "solid sphere", Icosphere(SphereRadius, SphereLevel))
 	bin("hub.stl", "flanged hub", hub)
 	bin("tube.stl", "", Tube(TubeOuter, TubeInner, TubeLength, TubeSides))

@@ -28,7 +28,6 @@ func WriteHistoryPlot(dir, title string, probeNames []string, rows []Row) error 
 	p.X.Label.Text = "time, s"
 	p.Y.Label.Text = "temperature, °C"
 	p.Add(plotter.NewGrid())
-	p.Legend.Top = true
 
 	series := func(pick func(Row) float64) plotter.XYs {
 		xy := make(plotter.XYs, len(rows))
@@ -60,9 +59,15 @@ func WriteHistoryPlot(dir, title string, probeNames []string, rows []Row) error 
 		p.Add(l)
 		p.Legend.Add(band.name, l)
 	}
+	// The curves of a heating part fill the top right, those of a cooling
+	// part the bottom right: put the legend in the corner they leave free.
 	p.Legend.Left = false
-	p.Legend.YOffs = -vg.Points(4)
+	p.Legend.Top = len(rows) == 0 || rows[len(rows)-1].Mean < rows[0].Mean
 	p.Legend.XOffs = -vg.Points(4)
+	p.Legend.YOffs = vg.Points(4)
+	if p.Legend.Top {
+		p.Legend.YOffs = -vg.Points(4)
+	}
 	if err := p.Save(18*vg.Centimeter, 11*vg.Centimeter, filepath.Join(dir, HistoryFile)); err != nil {
 		return fmt.Errorf("write %s: %w", HistoryFile, err)
 	}

@@ -31,6 +31,11 @@ type linearSolver interface {
 	// solve improves x in place (warm start) until ‖b − A·x‖ ≤ tol·‖b‖ and
 	// returns the number of iterations.
 	solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error)
+	// moved returns the bytes moved to and from memory so far, by a model
+	// of each pass (bytes per part cell).
+	moved() float64
+	// memory returns the bytes of the solver's own arrays.
+	memory() int
 }
 
 // ctxCheckEvery is how many iterations pass between looks at the context:
@@ -99,6 +104,8 @@ type jacobiCG struct {
 	b, x  []float64
 	alpha float64
 	beta  float64
+	cells int
+	bytes float64 // moved so far
 
 	startTask, productTask, updateTask, directionTask func(int)
 }
@@ -109,6 +116,11 @@ func newJacobiCG(ws *workers, slabs [][]span, size int) *jacobiCG {
 		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
 		invDiag: make([]float64, size),
 		sums:    make([]partial, ws.count()),
+	}
+	for _, slab := range slabs {
+		for _, sp := range slab {
+			s.cells += sp.hi - sp.lo
+		}
 	}
 	s.startTask = s.start
 	s.productTask = s.product
@@ -132,21 +144,19 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 	s.a, s.b, s.x = a, b, x
 	defer func() { s.a, s.b, s.x = nil, nil, nil }()
 
+	cells := float64(s.cells)
 	rz, bb, rr := s.reduce(s.startTask)
+	s.bytes += (bytesStencil64 + 5*8) * cells
 	limit := tol * tol * bb
 	if rr <= limit {
 		return 0, nil
 	}
 	// Jacobi-preconditioned CG on this operator needs about as many
 	// iterations as cells along the part; the cap only stops a breakdown.
-	cells := 0
-	for _, slab := range s.slabs {
-		for _, sp := range slab {
-			cells += sp.hi - sp.lo
-		}
-	}
-	maxIter := 1000 + 100*int(math.Cbrt(float64(cells)))
+	maxIter := 1000 + 100*int(math.Cbrt(cells))
 	for it := 1; it <= maxIter; it++ {
+		// product 48, update 56, direction 32 bytes per cell
+		s.bytes += (bytesStencil64 + 2*8 + 7*8 + 4*8) * cells
 		if it%ctxCheckEvery == 0 {
 			if err := ctx.Err(); err != nil {
 				return it, err
@@ -167,6 +177,13 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 	}
 	return maxIter, ErrLinearSolve
 }
+
+func (s *jacobiCG) moved() float64 { return s.bytes }
+
+func (s *jacobiCG) memory() int { return 8 * (len(s.r) + len(s.p) + len(s.q) + len(s.invDiag)) }
+
+// bytesStencil64 is the float64 stencil's diag, gx, gy, gz per cell.
+const bytesStencil64 = 4 * 8
 
 // start sets r = b − A·x and p = r/diag; sums r·r/diag, b·b and r·r.
 func (s *jacobiCG) start(w int) {
@@ -192,11 +209,13 @@ func (s *jacobiCG) start(w int) {
 }
 
 // product sets q = A·p and sums p·q.
-func (s *jacobiCG) product(w int) {
-	a, p, q := s.a, s.p, s.q
+func (s *jacobiCG) product(w int) { s.sums[w] = partial{a: s.a.product(s.slabs[w], s.p, s.q)} }
+
+// product sets q = A·p on the cells of spans and returns their sum of p·q.
+func (a *stencil) product(spans []span, p, q []float64) float64 {
 	nx, nxy := a.nx, a.nxy
 	var pq float64
-	for _, sp := range s.slabs[w] {
+	for _, sp := range spans {
 		for c := sp.lo; c < sp.hi; c++ {
 			ap := a.diag[c]*p[c] - a.gx[c]*p[c+1] - a.gx[c-1]*p[c-1] -
 				a.gy[c]*p[c+nx] - a.gy[c-nx]*p[c-nx] -
@@ -205,7 +224,7 @@ func (s *jacobiCG) product(w int) {
 			pq += p[c] * ap
 		}
 	}
-	s.sums[w] = partial{a: pq}
+	return pq
 }
 
 // update steps x and r along p; sums r·r/diag and r·r.

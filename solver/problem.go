@@ -47,8 +47,9 @@ type Exposure struct {
 // difference between the initial temperature and a fluid or surroundings
 // temperature; FirstStep the smaller of the step at cell Fourier number 1
 // and the step in which the initial surface heat flow changes a cell by
-// MaxChange; MaxStep End/20; Tolerance 1e-8. Backward Euler steps are
-// further kept short enough that the estimated time lag stays near 0.5 %.
+// MaxChange; MaxStep End/20; Tolerance 1e-8; Preconditioner multigrid.
+// Backward Euler steps are further kept short enough that the estimated
+// time lag stays near 0.5 %.
 type Stepping struct {
 	Scheme    string  // "backward-euler" or "bdf2"
 	MaxChange float64 // largest cell temperature change per step, K
@@ -56,6 +57,9 @@ type Stepping struct {
 	MaxStep   float64 // s
 	// Tolerance is the relative residual at which a linear solve stops.
 	Tolerance float64
+	// Preconditioner of the conjugate gradient linear solver: "multigrid"
+	// (the default) or "jacobi", the plain diagonal kept as a reference.
+	Preconditioner string
 }
 
 // Problem is everything the solver needs for one run.

@@ -183,29 +183,39 @@ func newRun(p *Problem) *run {
 	}
 	r.slabs = partition(g, r.pad, threads)
 	r.ws = newWorkers(len(r.slabs))
-	r.lin = newJacobiCG(r.ws, r.slabs, size)
+	if p.Stepping.Preconditioner == Jacobi {
+		r.lin = newJacobiCG(r.ws, r.slabs, size)
+	} else {
+		r.lin = newMultigridCG(r.ws, r.slabs, g.N, func(c int) bool { return g.Region[c] != 0 }, size)
+	}
 	r.kTask = r.conductivities
 	r.fillTask = r.fill
 	r.stepping = r.defaults()
 	return r
 }
 
-// partition finds the runs of part cells and splits the grid into at most
-// `threads` slabs of whole z-planes holding about equal numbers of part cells.
+// partition finds the runs of part cells of g and splits the grid into at
+// most `threads` slabs of whole z-planes holding about equal numbers of part cells.
 func partition(g *mesh.Grid, pad, threads int) [][]span {
-	nx, ny, nz := g.N[0], g.N[1], g.N[2]
+	return partitionMask(g.N, func(c int) bool { return g.Region[c] != 0 }, pad, threads)
+}
+
+// partitionMask is partition for a box of n cells whose part cells
+// inPart tells (by unpadded index).
+func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int) [][]span {
+	nx, ny, nz := n[0], n[1], n[2]
 	planes := make([][]span, nz)
 	total := 0
 	for z := range nz {
 		for y := range ny {
-			row := g.Index(0, y, z)
+			row := nx * (y + ny*z)
 			for x := 0; x < nx; {
-				if g.Region[row+x] == 0 {
+				if !inPart(row + x) {
 					x++
 					continue
 				}
 				lo := x
-				for x < nx && g.Region[row+x] != 0 {
+				for x < nx && inPart(row+x) {
 					x++
 				}
 				planes[z] = append(planes[z], span{lo: pad + row + lo, hi: pad + row + x, rowStart: pad + row, y: y, z: z})
@@ -213,8 +223,8 @@ func partition(g *mesh.Grid, pad, threads int) [][]span {
 			}
 		}
 	}
-	n := min(threads, max(1, total/minCellsPerWorker), nz)
-	slabs := make([][]span, n)
+	count := min(threads, max(1, total/minCellsPerWorker), nz)
+	slabs := make([][]span, count)
 	done := 0
 	w := 0
 	for z := range nz {
@@ -222,7 +232,7 @@ func partition(g *mesh.Grid, pad, threads int) [][]span {
 		for _, sp := range planes[z] {
 			done += sp.hi - sp.lo
 		}
-		if w < n-1 && done*n >= (w+1)*total {
+		if w < count-1 && done*count >= (w+1)*total {
 			w++
 		}
 	}

@@ -15,6 +15,12 @@ const (
 	BDF2          = "bdf2"
 )
 
+// Preconditioners of the linear solver.
+const (
+	Multigrid = "multigrid"
+	Jacobi    = "jacobi"
+)
+
 // problemErrors collects every input problem so that they are reported at once.
 type problemErrors []error
 
@@ -175,6 +181,11 @@ func (s Stepping) validate(errs *problemErrors) {
 	case "", BackwardEuler, BDF2:
 	default:
 		errs.add("stepping.scheme: must be %q or %q, got %q", BackwardEuler, BDF2, s.Scheme)
+	}
+	switch s.Preconditioner {
+	case "", Multigrid, Jacobi:
+	default:
+		errs.add("stepping.preconditioner: must be %q or %q, got %q", Multigrid, Jacobi, s.Preconditioner)
 	}
 	check := func(name string, v float64, unit string) {
 		if !(v >= 0) || !finite(v) {

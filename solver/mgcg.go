@@ -1,0 +1,206 @@
+package solver
+
+import (
+	"context"
+	"fmt"
+)
+
+// maxMultigridIterations stops a breakdown; a healthy solve takes a few
+// dozen at most.
+const maxMultigridIterations = 500
+
+// multigridCG is conjugate gradients preconditioned by one multigrid
+// V-cycle per iteration, parallel over z-slabs. The preconditioner works in
+// float32, so it is not exactly symmetric; β takes the Polak–Ribière form
+// (flexible CG), which tolerates that.
+type multigridCG struct {
+	ws      *workers
+	slabs   [][]span
+	mg      *multigrid
+	r, p, q []float64
+	sums    []partial
+	cells   int
+	bytes   float64 // moved by the CG passes so far
+
+	// operands of the running solve, read by the tasks
+	a           *stencil
+	b, x        []float64
+	alpha, beta float64
+
+	fromStencilTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
+}
+
+func newMultigridCG(ws *workers, slabs [][]span, g [3]int, part func(c int) bool, size int) *multigridCG {
+	mask := make([]bool, g[0]*g[1]*g[2])
+	for c := range mask {
+		mask[c] = part(c)
+	}
+	s := &multigridCG{
+		ws: ws, slabs: slabs, mg: newMultigrid(ws, g, mask),
+		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
+		sums: make([]partial, ws.count()),
+	}
+	for _, slab := range slabs {
+		for _, sp := range slab {
+			s.cells += sp.hi - sp.lo
+		}
+	}
+	s.fromStencilTask = s.fromStencil
+	s.startTask = s.start
+	s.productTask = s.product
+	s.updateTask = s.update
+	s.dotTask = s.dot
+	s.directionTask = s.direction
+	return s
+}
+
+func (s *multigridCG) moved() float64 { return s.bytes + s.mg.moved }
+
+func (s *multigridCG) memory() int {
+	return 8*(len(s.r)+len(s.p)+len(s.q)) + s.mg.memory()
+}
+
+// reduce runs task on all slabs and returns the sums of the partials.
+func (s *multigridCG) reduce(task func(int)) (a, b float64) {
+	s.ws.run(task)
+	for i := range s.sums {
+		a += s.sums[i].a
+		b += s.sums[i].b
+	}
+	return a, b
+}
+
+// Bytes per part cell of the CG passes (float64 = 8, float32 = 4).
+const (
+	bytesStart     = bytesStencil64 + 3*8 + 4 // x, b, r; the preconditioner's b
+	bytesProduct   = bytesStencil64 + 2*8     // p, q
+	bytesUpdate    = 6*8 + 4                  // x, r read and written, p, q; the preconditioner's b
+	bytesDot       = 2*8 + 4                  // r, q, z
+	bytesDirection = 4 + 2*8                  // z, p read and written
+)
+
+func (s *multigridCG) solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error) {
+	s.a, s.b, s.x = a, b, x
+	defer func() { s.a, s.b, s.x = nil, nil, nil }()
+	cells := float64(s.cells)
+
+	s.mg.setup(a, s.fromStencilTask)
+	bb, rr := s.reduce(s.startTask)
+	s.bytes += bytesStart * cells
+	limit := tol * tol * bb
+	if rr <= limit {
+		return 0, nil
+	}
+	s.mg.apply()
+	rz, _ := s.reduce(s.dotTask)
+	s.beta = 0
+	s.ws.run(s.directionTask)
+	s.bytes += (bytesDot + bytesDirection) * cells
+	for it := 1; it <= maxMultigridIterations; it++ {
+		if it%ctxCheckEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				return it, err
+			}
+		}
+		pq, _ := s.reduce(s.productTask)
+		if !(pq > 0) || !(rz > 0) {
+			return it, fmt.Errorf("%w: multigrid CG broke down (p·Ap = %g, r·z = %g)", ErrLinearSolve, pq, rz)
+		}
+		s.alpha = rz / pq
+		rr, _ := s.reduce(s.updateTask)
+		s.bytes += (bytesProduct + bytesUpdate) * cells
+		if rr <= limit {
+			return it, nil
+		}
+		s.mg.apply()
+		rzNew, zq := s.reduce(s.dotTask)
+		// Polak–Ribière: β = z·(r_new − r_old)/rz_old with r_new − r_old = −α·q.
+		s.beta = -s.alpha * zq / rz
+		rz = rzNew
+		s.ws.run(s.directionTask)
+		s.bytes += (bytesDot + bytesDirection) * cells
+	}
+	return maxMultigridIterations, ErrLinearSolve
+}
+
+// fromStencil copies the fine stencil of slab w into the finest level in
+// float32, with each cell's own terms (the diagonal less its face
+// conductances, taken in float64 before rounding: at large steps they are
+// a small difference of large numbers).
+func (s *multigridCG) fromStencil(w int) {
+	a, l := s.a, s.mg.levels[0]
+	nx, nxy := a.nx, a.nxy
+	hi := 0.0
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			g := a.gx[c] + a.gx[c-1] + a.gy[c] + a.gy[c-nx] + a.gz[c] + a.gz[c-nxy]
+			l.diag[c], l.gx[c], l.gy[c], l.gz[c] = float32(a.diag[c]), float32(a.gx[c]), float32(a.gy[c]), float32(a.gz[c])
+			l.d[c] = float32(a.diag[c] - g)
+			hi = max(hi, 1+g/a.diag[c])
+		}
+	}
+	l.lmax[w] = partial{a: hi}
+}
+
+// start sets r = b − A·x and hands r to the preconditioner; sums b·b and r·r.
+func (s *multigridCG) start(w int) {
+	a, x, b, r, pb := s.a, s.x, s.b, s.r, s.mg.levels[0].b
+	nx, nxy := a.nx, a.nxy
+	var bb, rr float64
+	for _, sp := range s.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			ax := a.diag[c]*x[c] - a.gx[c]*x[c+1] - a.gx[c-1]*x[c-1] -
+				a.gy[c]*x[c+nx] - a.gy[c-nx]*x[c-nx] -
+				a.gz[c]*x[c+nxy] - a.gz[c-nxy]*x[c-nxy]
+			rc := b[c] - ax
+			r[c], pb[c] = rc, float32(rc)
+			bb += b[c] * b[c]
+			rr += rc * rc
+		}
+	}
+	s.sums[w] = partial{a: bb, b: rr}
+}
+
+func (s *multigridCG) product(w int) { s.sums[w] = partial{a: s.a.product(s.slabs[w], s.p, s.q)} }
+
+// update steps x and r along p and hands r to the preconditioner; sums r·r.
+func (s *multigridCG) update(w int) {
+	alpha, pb := s.alpha, s.mg.levels[0].b
+	var rr float64
+	for _, sp := range s.slabs[w] {
+		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.lo:sp.hi], s.p[sp.lo:sp.hi], s.q[sp.lo:sp.hi], pb[sp.lo:sp.hi]
+		for i := range r {
+			x[i] += alpha * p[i]
+			rc := r[i] - alpha*q[i]
+			r[i], rb[i] = rc, float32(rc)
+			rr += rc * rc
+		}
+	}
+	s.sums[w] = partial{a: rr}
+}
+
+// dot sums r·z and z·q, z being the preconditioner's output.
+func (s *multigridCG) dot(w int) {
+	z := s.mg.levels[0].x
+	var rz, zq float64
+	for _, sp := range s.slabs[w] {
+		r, q, zs := s.r[sp.lo:sp.hi], s.q[sp.lo:sp.hi], z[sp.lo:sp.hi]
+		for i := range r {
+			zi := float64(zs[i])
+			rz += r[i] * zi
+			zq += zi * q[i]
+		}
+	}
+	s.sums[w] = partial{a: rz, b: zq}
+}
+
+// direction sets p = z + β·p.
+func (s *multigridCG) direction(w int) {
+	beta, z := s.beta, s.mg.levels[0].x
+	for _, sp := range s.slabs[w] {
+		p, zs := s.p[sp.lo:sp.hi], z[sp.lo:sp.hi]
+		for i := range p {
+			p[i] = float64(zs[i]) + beta*p[i]
+		}
+	}
+}

@@ -1,0 +1,144 @@
+package solver
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"testing"
+
+	"soakfarm/mesh"
+)
+
+// bracketGrid is an n³ box of 1 mm cells with a through bore along z, a
+// slot that leaves walls one cell thick, and a second region (its own
+// material) in the upper half: holes, thin walls and a material jump at
+// once. Every surface face is exposed.
+func bracketGrid(n int) *mesh.Grid {
+	const cell = 1e-3
+	f := float64(n) * cell
+	g := testGrid(testPart{
+		n: [3]int{n, n, n}, cell: cell,
+		inside: func(p [3]float64) bool {
+			if math.Hypot(p[0]-f/3, p[1]-f/2) < f/5 { // bore
+				return false
+			}
+			// slot: walls of one cell at x = n−1, y = 0 and y = n−1
+			return !(p[0] > 2*f/3 && p[0] < f-cell && p[1] > cell && p[1] < f-cell)
+		},
+	})
+	for c, r := range g.Region {
+		if _, _, k := g.Coords(c); r != 0 && k >= n/2 {
+			g.Region[c] = 2
+		}
+	}
+	return g
+}
+
+// linearStep takes one backward-Euler step of length dt from the initial
+// state with the given preconditioner and returns the solution, the
+// iterations and ‖b − A·x‖/‖b‖ recomputed in float64 from the assembled
+// system, with λ, a lower bound of A's eigenvalues: the smallest of the
+// cells' own terms (Gershgorin, A being symmetric with a diagonal that
+// exceeds its row's conductances by them).
+func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x []float64, iterations int, residual, bNorm, lambda float64) {
+	t.Helper()
+	p.Stepping.Preconditioner = preconditioner
+	r := newRun(p)
+	defer r.ws.stop()
+	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = p.Initial, p.Initial, p.Initial })
+	iterations, err := r.step(context.Background(), 0, dt, 0, backwardEulerCoefficients)
+	if err != nil {
+		t.Fatalf("%s: %v", preconditioner, err)
+	}
+	ax := make([]float64, len(r.t))
+	lambda = math.Inf(1)
+	var rr, bb float64
+	a := &r.st
+	for _, slab := range r.slabs {
+		a.product(slab, r.t, ax)
+		for _, sp := range slab {
+			for c := sp.lo; c < sp.hi; c++ {
+				rr += (r.b[c] - ax[c]) * (r.b[c] - ax[c])
+				bb += r.b[c] * r.b[c]
+				own := a.diag[c] - a.gx[c] - a.gx[c-1] - a.gy[c] - a.gy[c-a.nx] - a.gz[c] - a.gz[c-a.nxy]
+				lambda = min(lambda, own)
+			}
+		}
+	}
+	return append([]float64(nil), r.t...), iterations, math.Sqrt(rr), math.Sqrt(bb), lambda
+}
+
+// TestPreconditionersAgree solves the same steps with multigrid and with
+// the plain Jacobi reference, on the bracket (bore, thin walls, two
+// materials whose conductivities differ 1000-fold either way) at cell
+// Fourier numbers 20 and 2000. Each solution must meet the tolerance by its
+// true residual, and the two must differ by no more than the residuals
+// allow: ‖x₁ − x₂‖ ≤ (‖r₁‖ + ‖r₂‖)/λmin.
+func TestPreconditionersAgree(t *testing.T) {
+	t.Parallel()
+	const k, rhoCp, tol = 40.0, 3.6e6, 1e-8
+	for _, ratio := range []float64{1e-3, 1e3} {
+		for _, fourier := range []float64{20, 2000} {
+			t.Run(fmt.Sprintf("k2/k1=%g/Fo=%g", ratio, fourier), func(t *testing.T) {
+				t.Parallel()
+				g := bracketGrid(24)
+				p := problemFor(g, constantMaterial(k, 1, rhoCp), convection(100, 293), 1073, 3600)
+				p.Materials = append(p.Materials, constantMaterial(k*ratio, 1, rhoCp))
+				p.Exposures = []Exposure{convection(100, 293), convection(100, 293)}
+				p.Stepping.Tolerance = tol
+				dt := fourier * g.CellSize * g.CellSize * rhoCp / k
+				var x [2][]float64
+				var res [2]float64
+				var lambda float64
+				for i, pre := range []string{Multigrid, Jacobi} {
+					var its int
+					var bNorm float64
+					x[i], its, res[i], bNorm, lambda = linearStep(t, p, dt, pre)
+					// The recurrence's residual drifts from the true one by
+					// rounding only; allow 10 %.
+					if res[i] > 1.1*tol*bNorm {
+						t.Errorf("%s: true residual %.3g of ‖b‖ after %d iterations, tolerance %g", pre, res[i]/bNorm, its, tol)
+					}
+					// A 1000-fold jump costs multigrid with geometric
+					// interpolation up to a few dozen iterations; the
+					// bound only catches a breakdown of convergence.
+					if pre == Multigrid && its > 80 {
+						t.Errorf("multigrid took %d iterations", its)
+					}
+					t.Logf("%s: %d iterations", pre, its)
+				}
+				var diff float64
+				for c := range x[0] {
+					diff += (x[0][c] - x[1][c]) * (x[0][c] - x[1][c])
+				}
+				if bound := (res[0] + res[1]) / lambda; math.Sqrt(diff) > bound {
+					t.Errorf("solutions differ by %.3g K (2-norm), residuals allow %.3g K", math.Sqrt(diff), bound)
+				}
+			})
+		}
+	}
+}
+
+// TestMultigridIterationsFlat: multigrid's iterations per step must not
+// grow with the grid (Jacobi's grow about with the cells along the part).
+func TestMultigridIterationsFlat(t *testing.T) {
+	t.Parallel()
+	const k, rhoCp, cell = 40.0, 3.6e6, 1e-3
+	sizes := []int{12, 24, 48}
+	if testing.Short() {
+		sizes = sizes[:2]
+	}
+	for _, fourier := range []float64{20, 2000} {
+		lo, hi := math.MaxInt, 0
+		for _, n := range sizes {
+			tp := block3(n)
+			tp.cell = cell
+			p := problemFor(testGrid(tp), constantMaterial(k, 1, rhoCp), convection(100, 293), 1073, 3600)
+			_, its, _, _, _ := linearStep(t, p, fourier*cell*cell*rhoCp/k, Multigrid)
+			lo, hi = min(lo, its), max(hi, its)
+		}
+		if hi-lo > 2 {
+			t.Errorf("Fo = %g: iterations range from %d to %d over %v³ cells", fourier, lo, hi, sizes)
+		}
+	}
+}

@@ -294,6 +294,34 @@ func (w *walker) message(n *yaml.Node, md protoreflect.MessageDescriptor, path s
 		if v.ShortTag() == "!!null" {
 			continue // an empty value leaves the field unset
 		}
+		if fd.IsMap() {
+			if v.Kind != yaml.MappingNode {
+				w.add(v, kpath, describe(v), "must be a mapping of names to values")
+				continue
+			}
+			entries := map[string]any{}
+			for j := 0; j+1 < len(v.Content); j += 2 {
+				nameNode := v.Content[j]
+				if nameNode.Kind != yaml.ScalarNode || nameNode.ShortTag() != "!!str" {
+					w.add(nameNode, kpath, describe(nameNode), "a name must be text")
+					continue
+				}
+				epath := kpath + "." + nameNode.Value
+				if _, dup := entries[nameNode.Value]; dup {
+					w.add(nameNode, epath, "", "name given twice")
+					continue
+				}
+				item := w.resolve(v.Content[j+1], epath)
+				if item == nil {
+					return out
+				}
+				if gv, ok := w.single(item, fd.MapValue(), epath); ok {
+					entries[nameNode.Value] = gv
+				}
+			}
+			out[fd.JSONName()] = entries
+			continue
+		}
 		if fd.IsList() {
 			if v.Kind != yaml.SequenceNode {
 				w.add(v, kpath, describe(v), "must be a list")
@@ -368,6 +396,10 @@ func (w *walker) single(n *yaml.Node, fd protoreflect.FieldDescriptor, path stri
 			return nil, false
 		}
 		return b, true
+	}
+	if fd.Kind() == protoreflect.BytesKind {
+		w.add(n, path, "", "is filled in from the file when a job is submitted to the farm; give file instead")
+		return nil, false
 	}
 	w.add(n, path, "", fmt.Sprintf("the spec reader does not handle %s fields", fd.Kind()))
 	return nil, false

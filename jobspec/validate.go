@@ -9,6 +9,7 @@ import (
 
 	"google.golang.org/protobuf/reflect/protoreflect"
 
+	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -115,9 +116,12 @@ func Validate(spec *soakv1.JobSpec, lim Limits) error {
 	}
 	c.finite(spec.ProtoReflect(), "")
 	c.text("name", spec.GetName())
-	c.part(spec.GetPart())
+	c.part(spec)
 	c.grid(spec, lim)
-	c.material(spec.GetMaterial())
+	if spec.GetMaterial() != nil || needsTopMaterial(spec.GetPart()) {
+		c.material("material", spec.GetMaterial())
+	}
+	c.materials(spec)
 	if spec.InitialC == nil {
 		c.add("initial_c", "", "required: the part's uniform starting temperature, °C")
 	} else {
@@ -132,6 +136,7 @@ func Validate(spec *soakv1.JobSpec, lim Limits) error {
 	}
 	for i, e := range spec.GetExposure() {
 		c.exposure(fmt.Sprintf("exposure[%d]", i), e, end)
+		c.selection(fmt.Sprintf("exposure[%d]", i), e, spec.GetPart())
 	}
 	probes := c.probes(spec)
 	c.milestones(spec.GetMilestones(), probes)
@@ -171,6 +176,13 @@ func (c *checker) finite(m protoreflect.Message, path string) {
 			continue
 		}
 		fpath := join(path, string(fd.Name()))
+		if fd.IsMap() {
+			m.Get(fd).Map().Range(func(k protoreflect.MapKey, v protoreflect.Value) bool {
+				c.finiteValue(fd.MapValue(), v, fpath+"."+k.String())
+				return true
+			})
+			continue
+		}
 		if !fd.IsList() {
 			c.finiteValue(fd, m.Get(fd), fpath)
 			continue
@@ -243,27 +255,44 @@ func (c *checker) label(path, name string, seen map[string]string) {
 	seen[name] = path
 }
 
-func (c *checker) part(p *soakv1.Part) {
-	switch s := p.GetShape().(type) {
-	case *soakv1.Part_Sphere:
-		c.positive("part.sphere.diameter_m", s.Sphere.GetDiameterM())
-	case *soakv1.Part_Cylinder:
-		c.positive("part.cylinder.diameter_m", s.Cylinder.GetDiameterM())
-		c.positive("part.cylinder.length_m", s.Cylinder.GetLengthM())
-		if axis := s.Cylinder.GetAxis(); AxisIndex(axis) < 0 {
-			c.add("part.cylinder.axis", strconv.Quote(axis), `must be "x", "y" or "z"`)
+func (c *checker) part(spec *soakv1.JobSpec) {
+	p := spec.GetPart()
+	if len(p.GetBodies()) > 0 {
+		if p.GetShape() != nil {
+			c.add("part.bodies", "", "set either one shape (sphere, cylinder, box) or bodies, not both")
 		}
-	case *soakv1.Part_Box:
-		sizes := s.Box.GetSizeM()
+		c.bodies(spec)
+		return
+	}
+	if !c.shape("part", p.GetSphere(), p.GetCylinder(), p.GetBox()) {
+		c.add("part", "", "required: one shape, sphere, cylinder or box, or a list of bodies")
+	}
+}
+
+// shape checks the one primitive set among sphere, cylinder and box; it
+// reports false when none is set.
+func (c *checker) shape(path string, sphere *soakv1.Sphere, cyl *soakv1.Cylinder, box *soakv1.Box) bool {
+	switch {
+	case sphere != nil:
+		c.positive(path+".sphere.diameter_m", sphere.GetDiameterM())
+	case cyl != nil:
+		c.positive(path+".cylinder.diameter_m", cyl.GetDiameterM())
+		c.positive(path+".cylinder.length_m", cyl.GetLengthM())
+		if axis := cyl.GetAxis(); AxisIndex(axis) < 0 {
+			c.add(path+".cylinder.axis", strconv.Quote(axis), `must be "x", "y" or "z"`)
+		}
+	case box != nil:
+		sizes := box.GetSizeM()
 		if len(sizes) != 3 {
-			c.add("part.box.size_m", strconv.Itoa(len(sizes))+" lengths", "must hold 3 lengths (x, y, z), m")
+			c.add(path+".box.size_m", strconv.Itoa(len(sizes))+" lengths", "must hold 3 lengths (x, y, z), m")
 		}
 		for i, v := range sizes {
-			c.positive(fmt.Sprintf("part.box.size_m[%d]", i), v)
+			c.positive(fmt.Sprintf("%s.box.size_m[%d]", path, i), v)
 		}
 	default:
-		c.add("part", "", "required: one shape, sphere, cylinder or box")
+		return false
 	}
+	return true
 }
 
 // AxisIndex returns 0, 1 or 2 for a cylinder axis "x", "y" or "z" ("" is
@@ -281,37 +310,33 @@ func AxisIndex(axis string) int {
 }
 
 // Extents returns the part's bounding box edge lengths along x, y and z, m,
-// and false when the shape is missing or its sizes are not positive and
-// finite.
+// and false when they are unknown: the shape is missing or its sizes are
+// not positive and finite, or a body is an STL file whose data the spec
+// does not carry.
 func Extents(p *soakv1.Part) ([3]float64, bool) {
-	var ext [3]float64
-	switch s := p.GetShape().(type) {
-	case *soakv1.Part_Sphere:
-		d := s.Sphere.GetDiameterM()
-		ext = [3]float64{d, d, d}
-	case *soakv1.Part_Cylinder:
-		axis := AxisIndex(s.Cylinder.GetAxis())
-		if axis < 0 {
-			return ext, false
-		}
-		d := s.Cylinder.GetDiameterM()
-		ext = [3]float64{d, d, d}
-		ext[axis] = s.Cylinder.GetLengthM()
-	case *soakv1.Part_Box:
-		sizes := s.Box.GetSizeM()
-		if len(sizes) != 3 {
-			return ext, false
-		}
-		ext = [3]float64(sizes)
-	default:
-		return ext, false
+	lo, hi, ok := Bounds(p)
+	return [3]float64{hi[0] - lo[0], hi[1] - lo[1], hi[2] - lo[2]}, ok
+}
+
+// Bounds returns the part's bounding box, m, as Extents.
+func Bounds(p *soakv1.Part) (lo, hi [3]float64, ok bool) {
+	var s mesh.Solid
+	var err error
+	if len(p.GetBodies()) > 0 {
+		s, err = mesh.AssemblyFromSpec(p, func(string) (uint8, bool) { return 1, true }, stlBounds)
+	} else {
+		s, err = mesh.SolidFromSpec(p)
 	}
-	for _, v := range ext {
-		if !finite(v) || v <= 0 {
-			return ext, false
+	if err != nil {
+		return lo, hi, false
+	}
+	lo, hi = s.Bounds()
+	for d := range 3 {
+		if e := hi[d] - lo[d]; !finite(e) || e <= 0 {
+			return lo, hi, false
 		}
 	}
-	return ext, true
+	return lo, hi, true
 }
 
 // CellSize returns the edge of the grid's cubic cells, m: cell_size_m, or
@@ -397,32 +422,32 @@ func bytesText(b float64) string {
 	return fmt.Sprintf("%.1f GiB", b/(1<<30))
 }
 
-func (c *checker) material(m *soakv1.Material) {
+func (c *checker) material(path string, m *soakv1.Material) {
 	if m == nil {
-		c.add("material", "", "required: density, conductivity and specific heat")
+		c.add(path, "", "required: density, conductivity and specific heat")
 		return
 	}
 	if d := m.GetDensityKgM3(); d == 0 {
-		c.add("material.density_kg_m3", "", "required: density, kg/m³")
+		c.add(path+".density_kg_m3", "", "required: density, kg/m³")
 	} else {
-		c.positive("material.density_kg_m3", d)
+		c.positive(path+".density_kg_m3", d)
 	}
-	c.property("conductivity_w_mk", m.ConductivityWMk, "conductivity_table", m.GetConductivityTable())
-	c.property("specific_heat_j_kgk", m.SpecificHeatJKgk, "specific_heat_table", m.GetSpecificHeatTable())
+	c.property(path, "conductivity_w_mk", m.ConductivityWMk, "conductivity_table", m.GetConductivityTable())
+	c.property(path, "specific_heat_j_kgk", m.SpecificHeatJKgk, "specific_heat_table", m.GetSpecificHeatTable())
 }
 
 // property checks a material property given as a constant or a table.
-func (c *checker) property(constName string, constant *float64, tableName string, table []*soakv1.TablePoint) {
+func (c *checker) property(mpath, constName string, constant *float64, tableName string, table []*soakv1.TablePoint) {
 	switch {
 	case constant == nil && len(table) == 0:
-		c.add("material."+constName, "", fmt.Sprintf("set one of %s and %s", constName, tableName))
+		c.add(mpath+"."+constName, "", fmt.Sprintf("set one of %s and %s", constName, tableName))
 	case constant != nil && len(table) > 0:
-		c.add("material."+tableName, "", fmt.Sprintf("set only one of %s and %s", constName, tableName))
+		c.add(mpath+"."+tableName, "", fmt.Sprintf("set only one of %s and %s", constName, tableName))
 	case constant != nil:
-		c.positive("material."+constName, *constant)
+		c.positive(mpath+"."+constName, *constant)
 	default:
 		for i, p := range table {
-			path := fmt.Sprintf("material.%s[%d]", tableName, i)
+			path := fmt.Sprintf("%s.%s[%d]", mpath, tableName, i)
 			t := p.GetTempC()
 			c.temperature(path+".temp_c", t)
 			if prev := table[max(i-1, 0)].GetTempC(); i > 0 && finite(t) && finite(prev) && t <= prev {
@@ -444,11 +469,12 @@ type exposureState struct {
 }
 
 func (c *checker) exposure(path string, e *soakv1.Exposure, end float64) {
+	others := len(e.GetSolids()) > 0 || len(e.GetBodies()) > 0 || e.GetRegion() != nil
 	switch surfaces, facing := e.GetSurfaces(), e.GetFacing(); {
-	case surfaces == "" && len(facing) == 0:
-		c.add(path, "", "set one of surfaces and facing")
-	case surfaces != "" && len(facing) > 0:
-		c.add(path+".facing", "", "set only one of surfaces and facing")
+	case surfaces == "" && len(facing) == 0 && !others:
+		c.add(path, "", "set surfaces, or one or more of facing, solids, bodies and region")
+	case surfaces != "" && (len(facing) > 0 || others):
+		c.add(path+".surfaces", strconv.Quote(surfaces), "set either surfaces or facing, solids, bodies and region, not both")
 	case surfaces != "":
 		if surfaces != "all" {
 			c.add(path+".surfaces", strconv.Quote(surfaces), `must be "all" (pick sides with facing)`)
@@ -550,7 +576,7 @@ func validDirection(d string) bool {
 // probes checks the probes and returns their names.
 func (c *checker) probes(spec *soakv1.JobSpec) map[string]string {
 	names := map[string]string{}
-	ext, shapeOK := Extents(spec.GetPart())
+	lo, hi, shapeOK := Bounds(spec.GetPart())
 	tolerance := CellSize(spec) / 2
 	for i, p := range spec.GetProbes() {
 		path := fmt.Sprintf("probes[%d]", i)
@@ -564,19 +590,24 @@ func (c *checker) probes(spec *soakv1.JobSpec) map[string]string {
 		if !shapeOK || !finite(point[0]) || !finite(point[1]) || !finite(point[2]) {
 			continue
 		}
-		if !inside(spec.GetPart(), ext, point, tolerance) {
+		if !inside(spec.GetPart(), lo, hi, point, tolerance) {
+			where := "the part (centred on the origin)"
+			if len(spec.GetPart().GetBodies()) > 0 {
+				where = fmt.Sprintf("the box around the part's bodies, (%s, %s, %s) to (%s, %s, %s) m,",
+					num(lo[0]), num(lo[1]), num(lo[2]), num(hi[0]), num(hi[1]), num(hi[2]))
+			}
 			c.add(path+".at_m", fmt.Sprintf("(%s, %s, %s)", num(point[0]), num(point[1]), num(point[2])),
-				fmt.Sprintf("must lie in the part (centred on the origin) or within half a cell, %s m, of it", num(tolerance)))
+				fmt.Sprintf("must lie in %s or within half a cell, %s m, of it", where, num(tolerance)))
 		}
 	}
 	return names
 }
 
 // inside reports whether p lies in the part, grown by tolerance, whose
-// bounding box extents are ext.
-func inside(part *soakv1.Part, ext, p [3]float64, tolerance float64) bool {
+// bounding box is lo to hi. For a part of bodies only the box is checked.
+func inside(part *soakv1.Part, lo, hi, p [3]float64, tolerance float64) bool {
 	for i := range 3 {
-		if math.Abs(p[i]) > ext[i]/2+tolerance {
+		if p[i] < lo[i]-tolerance || p[i] > hi[i]+tolerance {
 			return false
 		}
 	}

@@ -143,8 +143,8 @@ func TestValidateRules(t *testing.T) {
 		{"initial below absolute zero", func(s *soakv1.JobSpec) { s.InitialC = new(-273.15) }, "initial_c", "above absolute zero"},
 
 		// exposure: which faces
-		{"surfaces and facing", func(s *soakv1.JobSpec) { s.Exposure[0].Facing = []string{"+z"} }, "exposure[0].facing", "only one of surfaces and facing"},
-		{"neither surfaces nor facing", func(s *soakv1.JobSpec) { s.Exposure[0].Surfaces = "" }, "exposure[0]", "set one of surfaces and facing"},
+		{"surfaces and facing", func(s *soakv1.JobSpec) { s.Exposure[0].Facing = []string{"+z"} }, "exposure[0].surfaces", "either surfaces or facing, solids, bodies and region, not both"},
+		{"neither surfaces nor facing", func(s *soakv1.JobSpec) { s.Exposure[0].Surfaces = "" }, "exposure[0]", "set surfaces, or one or more of facing, solids, bodies and region"},
 		{"surfaces not all", func(s *soakv1.JobSpec) { s.Exposure[0].Surfaces = "outside" }, "exposure[0].surfaces", `must be "all"`},
 		{"facing unknown direction", func(s *soakv1.JobSpec) {
 			s.Exposure[0].Surfaces, s.Exposure[0].Facing = "", []string{"+x", "x+"}

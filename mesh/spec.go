@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"slices"
 
+	"soakfarm/mesh/stl"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -197,4 +198,19 @@ func SelectorsFromSpec(exposures []*soakv1.Exposure) ([]Selector, error) {
 		return nil, err
 	}
 	return selectors, nil
+}
+
+// STLOptions returns how to read an STL body of the spec: its units,
+// repair setting and placement (the translation given in m, as the spec
+// does, converted to the file's units, in which stl.Options moves).
+func STLOptions(f *soakv1.StlFile, rotateDeg, translateM [3]float64) (stl.Options, error) {
+	unit, ok := stl.UnitScale(f.GetUnits())
+	if !ok {
+		return stl.Options{}, fmt.Errorf("units: must be \"m\", \"mm\" or \"in\", got %q", f.GetUnits())
+	}
+	opt := stl.Options{Units: f.GetUnits(), RotateDeg: rotateDeg, RepairHoles: int(f.GetRepairHoles())}
+	for d := range translateM {
+		opt.Translate[d] = translateM[d] / unit
+	}
+	return opt, nil
 }

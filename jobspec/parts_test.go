@@ -96,9 +96,13 @@ func TestValidateBodies(t *testing.T) {
 			s.Materials = map[string]*soakv1.Material{"bronze": steel()}
 			s.Contacts = []*soakv1.Contact{{Materials: []string{"material", "bronze"}}}
 		}, "contacts[0].conductance_w_m2k", "required"},
-		{"exposure of an unknown body", func(s *soakv1.JobSpec) { s.Exposure[1] = &soakv1.Exposure{Bodies: []string{"nut"}, HWM2K: 5, FluidC: new(20.0)} },
+		{"exposure of an unknown body", func(s *soakv1.JobSpec) {
+			s.Exposure[1] = &soakv1.Exposure{Bodies: []string{"nut"}, HWM2K: 5, FluidC: new(20.0)}
+		},
 			"exposure[1].bodies[0]", "no body of the part"},
-		{"solids without STL", func(s *soakv1.JobSpec) { s.Exposure[1] = &soakv1.Exposure{Solids: []string{"top"}, HWM2K: 5, FluidC: new(20.0)} },
+		{"solids without STL", func(s *soakv1.JobSpec) {
+			s.Exposure[1] = &soakv1.Exposure{Solids: []string{"top"}, HWM2K: 5, FluidC: new(20.0)}
+		},
 			"exposure[1].solids", "no STL body"},
 		{"region upside down", func(s *soakv1.JobSpec) {
 			s.Exposure[1] = &soakv1.Exposure{Region: &soakv1.Region{MinM: []float64{0, 0, 0.1}, MaxM: []float64{1, 1, 0}}, HWM2K: 5, FluidC: new(20.0)}

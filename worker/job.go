@@ -109,20 +109,41 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 		heartbeats.Wait()
 	}()
 
+	if err := w.checkMemory(job.GetSpec()); err != nil {
+		w.failAttempt(q, c, err)
+		return
+	}
 	outDir, err := os.MkdirTemp(w.cfg.WorkDir, "soak-"+id+"-")
 	if err != nil {
 		w.failAttempt(q, c, fmt.Errorf("output folder: %w", err))
 		return
 	}
 	defer os.RemoveAll(outDir)
+	publish := c.progressPublisher(q, w.cfg.ProgressInterval)
+	var diskChecked time.Time
 	summary, runErr := w.cfg.Runner(jobCtx, job.GetSpec(), outDir, pipeline.Options{
-		Progress: c.progressPublisher(q, w.cfg.ProgressInterval),
+		Progress: func(p *soakv1.JobProgress) {
+			publish(p)
+			// Snapshots grow the folder while the job runs; a look
+			// once a second stops a runaway job early.
+			if w.cfg.MaxJobDisk > 0 && time.Since(diskChecked) >= time.Second {
+				diskChecked = time.Now()
+				if err := w.checkDisk(outDir); err != nil {
+					cancel(err)
+				}
+			}
+		},
 		Milestone: func(m *soakv1.MilestoneReached) {
 			c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Milestone{Milestone: m}})
 		},
 		Threads: w.cfg.Threads,
 	})
 	cause := context.Cause(jobCtx)
+	if runErr == nil {
+		// The last files are written at the end of the run.
+		runErr = w.checkDisk(outDir)
+	}
+	var limit *limitError
 	switch {
 	case runErr == nil:
 		w.finish(q, c, summary, outDir)
@@ -133,6 +154,8 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 	case errors.Is(cause, errSuperseded):
 		// Another delivery owns the job; its worker acknowledges.
 		log.Warn("job taken over elsewhere; dropping this attempt")
+	case errors.As(cause, &limit):
+		w.failAttempt(q, c, cause)
 	default:
 		w.failAttempt(q, c, runErr)
 	}
@@ -325,16 +348,19 @@ func (w *Worker) cancelled(q queue, c *claim) {
 	w.ended(q, c, job)
 }
 
-// failAttempt records a failed attempt. On the last delivery the job
-// fails with every attempt's reason; before that it goes back to the
-// queue after a delay that grows with the attempts.
+// failAttempt records a failed attempt. On the last delivery, or when
+// the job is over one of the worker's limits, the job fails with every
+// attempt's reason; otherwise it goes back to the queue after a delay that
+// grows with the attempts.
 func (w *Worker) failAttempt(q queue, c *claim, runErr error) {
+	var limit *limitError
+	permanent := errors.As(runErr, &limit)
 	job, err := c.update(q, func(job *soakv1.Job, now time.Time) {
 		store.CloseOpenAttempt(job, now, runErr.Error())
 		switch {
 		case job.GetCancelRequested():
 			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
-		case c.last:
+		case c.last || permanent:
 			store.End(job, soakv1.JobState_JOB_STATE_FAILED, now, store.AttemptsReport(job))
 		default:
 			job.State = soakv1.JobState_JOB_STATE_QUEUED

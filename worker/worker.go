@@ -47,6 +47,12 @@ type Config struct {
 	// RetryDelay is how long a failed job waits before its next attempt,
 	// times the attempt number; default 2 s.
 	RetryDelay time.Duration
+	// MaxJobMemory, when positive, fails a job whose grid memory estimate
+	// (mesh.EstimateBytes) is larger, before it is meshed.
+	MaxJobMemory int64
+	// MaxJobDisk, when positive, fails a job whose result files grow
+	// larger. Either limit fails the job at once, without a retry.
+	MaxJobDisk int64
 	Logger     *slog.Logger
 }
 

@@ -336,9 +336,10 @@ func newSchedulerCmd(s streams) *cobra.Command {
 
 func newWorkerCmd(s streams) *cobra.Command {
 	var (
-		conn    natsFlags
-		cfg     worker.Config
-		workDir string
+		conn                     natsFlags
+		cfg                      worker.Config
+		workDir                  string
+		maxJobMemory, maxJobDisk string
 	)
 	cmd := &cobra.Command{
 		Use:   "worker",
@@ -350,6 +351,19 @@ func newWorkerCmd(s streams) *cobra.Command {
 			log := serverLogger(s)
 			if cfg.Concurrency < 1 {
 				return withCode(ExitUsage, fmt.Errorf("--concurrency: must be at least 1, got %d", cfg.Concurrency))
+			}
+			for _, limit := range []struct {
+				flag, value string
+				bytes       *int64
+			}{{"--max-job-memory", maxJobMemory, &cfg.MaxJobMemory}, {"--max-job-disk", maxJobDisk, &cfg.MaxJobDisk}} {
+				if limit.value == "" {
+					continue
+				}
+				b, err := parseBytes(limit.value)
+				if err != nil {
+					return withCode(ExitUsage, fmt.Errorf("%s: %w", limit.flag, err))
+				}
+				*limit.bytes = b
 			}
 			cfg.WorkDir = workDir
 			cfg.Logger = log
@@ -373,5 +387,7 @@ func newWorkerCmd(s streams) *cobra.Command {
 	f.StringVar(&cfg.Name, "name", "", "worker name shown in job records (default host-pid)")
 	f.IntVar(&cfg.Threads, "threads", 0, "solver threads per job (default: cores / concurrency)")
 	f.StringVar(&workDir, "work-dir", "", "folder for result files before upload (default: system temporary folder)")
+	f.StringVar(&maxJobMemory, "max-job-memory", "", "fail jobs whose grid memory estimate is larger, e.g. 2GiB (default: no limit)")
+	f.StringVar(&maxJobDisk, "max-job-disk", "", "fail jobs whose result files grow larger, e.g. 500MiB (default: no limit)")
 	return cmd
 }

@@ -124,6 +124,18 @@ func Start(ctx context.Context, cfg Config) (*Farm, error) {
 	return f, nil
 }
 
+// StartNATS runs the farm's NATS server alone, as Start does for a whole
+// farm: JetStream on cfg.DataDir, listening on cfg.NATSListen ("" keeps it
+// in-process), users from cfg.NATSUser and cfg.NATSPassword. `soak broker`
+// uses it so NATS can stop and restart apart from the scheduler. The
+// caller shuts the server down.
+func StartNATS(cfg Config) (*server.Server, error) {
+	if cfg.DataDir == "" {
+		return nil, errors.New("localfarm: DataDir is required")
+	}
+	return startNATS(cfg)
+}
+
 func startNATS(cfg Config) (*server.Server, error) {
 	opts := &server.Options{
 		ServerName: "soak-local",

@@ -19,6 +19,9 @@ type Options struct {
 	Milestone func(*soakv1.MilestoneReached)
 	// Threads bounds the solver's goroutines; 0 uses every core.
 	Threads int
+	// SpecDir is the folder of the spec file, against which STL files the
+	// spec names without carrying their data are read (local runs only).
+	SpecDir string
 
 	// skipChecks leaves out the verification, for the pipeline's own
 	// second solve when refining.

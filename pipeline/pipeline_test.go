@@ -194,7 +194,7 @@ func TestProbePlacement(t *testing.T) {
 			{Name: "corner", AtM: []float64{0.02, 0.01, 0.01}},
 		},
 	}
-	m, err := Build(context.Background(), spec, 1)
+	m, err := Build(context.Background(), spec, Options{Threads: 1})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -227,7 +227,7 @@ func TestProbePlacement(t *testing.T) {
 	}
 
 	spec.Probes = []*soakv1.Probe{{Name: "away", AtM: []float64{0.03, 0, 0}}}
-	if _, err := Build(context.Background(), spec, 1); err == nil || !strings.Contains(err.Error(), "probes[0].at_m") {
+	if _, err := Build(context.Background(), spec, Options{Threads: 1}); err == nil || !strings.Contains(err.Error(), "probes[0].at_m") {
 		t.Errorf("probe outside the part: error %v, want one naming probes[0].at_m", err)
 	}
 }

@@ -10,7 +10,6 @@ import (
 
 	"google.golang.org/protobuf/types/known/wrapperspb"
 
-	"soakfarm/estimate"
 	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
 	"soakfarm/report"
@@ -50,14 +49,20 @@ type Model struct {
 	hasEq  bool
 	qMax   float64 // energy exchanged on reaching equilibrium, J (signed)
 	volume float64 // model volume, m³
+	// regionNames[r-1] names region r's material ("material" for the
+	// top-level one).
+	regionNames []string
 }
 
-// Build meshes the part and prepares the solver problem for spec.
-func Build(ctx context.Context, spec *soakv1.JobSpec, threads int) (*Model, error) {
-	solid, err := mesh.SolidFromSpec(spec.GetPart())
+// Build meshes the part and prepares the solver problem for spec. STL
+// files the spec names without carrying their data are read from
+// opt.SpecDir; opt.Threads bounds the solver's goroutines.
+func Build(ctx context.Context, spec *soakv1.JobSpec, opt Options) (*Model, error) {
+	ps, err := setupPart(spec, opt.SpecDir)
 	if err != nil {
 		return nil, fmt.Errorf("part: %w", err)
 	}
+	solid := ps.solid
 	h := spec.GetCellSizeM()
 	if spec.CellsAcross != nil {
 		h = mesh.CellSizeFor(solid, int(spec.GetCellsAcross()))
@@ -70,14 +75,21 @@ func Build(ctx context.Context, spec *soakv1.JobSpec, threads int) (*Model, erro
 	if err != nil {
 		return nil, fmt.Errorf("mesh: %w", err)
 	}
-	m := &Model{Spec: spec, Solid: solid, Grid: g}
-	mat := estimate.MaterialFromSpec(spec.GetMaterial())
+	if asm, ok := solid.(*mesh.Assembly); ok {
+		area := 0.0
+		for _, grp := range g.Groups {
+			area += grp.TrueArea
+		}
+		solid = assembledPart{Assembly: asm, area: area}
+	}
+	m := &Model{Spec: spec, Solid: solid, Grid: g, regionNames: ps.names}
 	initial := kelvin(spec.GetInitialC())
 	ex := exposures(spec, g)
 	st := spec.GetTimeStepping()
 	m.Problem = &solver.Problem{
 		Grid:      g,
-		Materials: []solver.Material{mat},
+		Materials: ps.materials,
+		Contacts:  ps.contacts,
 		Exposures: ex,
 		Initial:   initial,
 		End:       spec.GetEndS(),
@@ -88,7 +100,7 @@ func Build(ctx context.Context, spec *soakv1.JobSpec, threads int) (*Model, erro
 			FirstStep: st.GetFirstStepS(),
 			MaxStep:   st.GetMaxStepS(),
 		},
-		Threads: threads,
+		Threads: opt.Threads,
 	}
 	faces := newFaceIndex(g)
 	for i, p := range spec.GetProbes() {
@@ -101,7 +113,10 @@ func Build(ctx context.Context, spec *soakv1.JobSpec, threads int) (*Model, erro
 	}
 	m.volume = float64(g.PartCells()) * h * h * h
 	m.teq, m.hasEq = equilibrium(g, ex, initial)
-	m.qMax = m.volume * mat.Density * curveIntegral(mat.SpecificHeat, initial, m.teq)
+	for r, v := range partVolumes(g, len(ps.materials)) {
+		mat := ps.materials[r]
+		m.qMax += v * mat.Density * curveIntegral(mat.SpecificHeat, initial, m.teq)
+	}
 	return m, nil
 }
 
@@ -110,7 +125,7 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 	if err := os.MkdirAll(outDir, 0o755); err != nil {
 		return nil, fmt.Errorf("output folder: %w", err)
 	}
-	m, err := Build(ctx, spec, opt.Threads)
+	m, err := Build(ctx, spec, opt)
 	if err != nil {
 		return nil, err
 	}

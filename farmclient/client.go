@@ -34,10 +34,15 @@ import (
 
 // Client talks to one farm scheduler. It is safe for concurrent use.
 type Client struct {
-	conn  *grpc.ClientConn
-	api   soakv1.FarmServiceClient
-	retry RetryPolicy
+	conn            *grpc.ClientConn
+	api             soakv1.FarmServiceClient
+	retry           RetryPolicy
+	maxMessageBytes int
 }
+
+// DefaultMaxMessageBytes bounds each gRPC message either way unless
+// WithMaxMessageBytes says otherwise; it matches the scheduler's default.
+const DefaultMaxMessageBytes = 64 << 20
 
 // RetryPolicy bounds how Watch resumes after a dropped stream: it waits
 // FirstDelay, doubling up to MaxDelay, and gives up after MaxAttempts
@@ -58,6 +63,7 @@ type config struct {
 	plaintext   bool
 	token       string
 	retry       RetryPolicy
+	maxMessage  int
 	dialOptions []grpc.DialOption
 }
 
@@ -81,6 +87,13 @@ func WithBearerToken(token string) Option {
 	return func(cfg *config) { cfg.token = token }
 }
 
+// WithMaxMessageBytes replaces DefaultMaxMessageBytes; a farm whose
+// scheduler accepts larger messages (its --max-message-bytes) needs the
+// same here to submit larger specs.
+func WithMaxMessageBytes(n int) Option {
+	return func(cfg *config) { cfg.maxMessage = n }
+}
+
 // WithRetryPolicy replaces DefaultRetryPolicy for Watch.
 func WithRetryPolicy(p RetryPolicy) Option {
 	return func(cfg *config) { cfg.retry = p }
@@ -98,7 +111,7 @@ func WithDialOptions(opts ...grpc.DialOption) Option {
 // plaintext and any other address over TLS with the system's roots, unless
 // WithPlaintext is given.
 func Dial(ctx context.Context, addr string, opts ...Option) (*Client, error) {
-	cfg := config{retry: DefaultRetryPolicy()}
+	cfg := config{retry: DefaultRetryPolicy(), maxMessage: DefaultMaxMessageBytes}
 	for _, o := range opts {
 		o(&cfg)
 	}
@@ -106,7 +119,9 @@ func Dial(ctx context.Context, addr string, opts ...Option) (*Client, error) {
 	if err != nil {
 		return nil, fmt.Errorf("farm address %q: want host:port: %w", addr, err)
 	}
-	dialOpts := append([]grpc.DialOption{}, cfg.dialOptions...)
+	dialOpts := append([]grpc.DialOption{
+		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(cfg.maxMessage), grpc.MaxCallSendMsgSize(cfg.maxMessage)),
+	}, cfg.dialOptions...)
 	secure := true
 	switch {
 	case cfg.tls != nil:
@@ -133,7 +148,7 @@ func Dial(ctx context.Context, addr string, opts ...Option) (*Client, error) {
 		conn.Close()
 		return nil, fmt.Errorf("farm at %s: %w", addr, err)
 	}
-	return &Client{conn: conn, api: soakv1.NewFarmServiceClient(conn), retry: cfg.retry}, nil
+	return &Client{conn: conn, api: soakv1.NewFarmServiceClient(conn), retry: cfg.retry, maxMessageBytes: cfg.maxMessage}, nil
 }
 
 // ErrUnreachable reports that the first connection attempt failed.

@@ -6,15 +6,31 @@ import (
 	"fmt"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
+	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
 
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
+// ErrTooLarge: a request over the client's message limit.
+var ErrTooLarge = errors.New("message too large")
+
 // Submit queues spec. A repeated Submit with the same non-empty clientKey
 // returns the job the first call made, with existing set.
+// A spec larger than the message limit is refused here with ErrTooLarge,
+// and one larger than the scheduler's limit by the scheduler
+// (RESOURCE_EXHAUSTED); either error says the limit and how to raise it.
 func (c *Client) Submit(ctx context.Context, spec *soakv1.JobSpec, clientKey string) (job *soakv1.Job, existing bool, err error) {
-	resp, err := c.api.SubmitJob(ctx, &soakv1.SubmitJobRequest{Spec: spec, ClientKey: clientKey})
+	req := &soakv1.SubmitJobRequest{Spec: spec, ClientKey: clientKey}
+	if n := proto.Size(req); n > c.maxMessageBytes {
+		return nil, false, fmt.Errorf("submit %q: %w: the request is %d bytes, over this client's limit of %d bytes (raise it with --max-message-bytes or farmclient.WithMaxMessageBytes; the scheduler's own --max-message-bytes must allow it too)",
+			spec.GetName(), ErrTooLarge, n, c.maxMessageBytes)
+	}
+	resp, err := c.api.SubmitJob(ctx, req)
+	if status.Code(err) == codes.ResourceExhausted {
+		return nil, false, fmt.Errorf("submit %q: %w (the scheduler's --max-message-bytes raises its limit)", spec.GetName(), err)
+	}
 	if err != nil {
 		return nil, false, fmt.Errorf("submit %q: %w", spec.GetName(), err)
 	}

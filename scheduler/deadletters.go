@@ -90,6 +90,7 @@ func (s *service) endExhaustedJob(ctx context.Context, data []byte) error {
 		if err := s.store.EnsureFinalEvent(ctx, job); err != nil {
 			return err
 		}
+		s.metrics.givenUp.Inc()
 		s.log.Warn("job failed: deliveries used up", "job", id, "reason", job.GetFailureReason())
 	}
 	return s.store.DeleteQueueMessage(ctx, adv.StreamSeq)

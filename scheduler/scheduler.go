@@ -7,27 +7,24 @@ package scheduler
 
 import (
 	"context"
-	"crypto/subtle"
 	"errors"
 	"fmt"
 	"log/slog"
 	"net"
-	"strings"
 	"sync"
 	"time"
 
 	"github.com/nats-io/nats.go"
+	"github.com/prometheus/client_golang/prometheus"
 	"google.golang.org/grpc"
-	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/health"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 	"google.golang.org/grpc/keepalive"
-	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/reflection"
-	"google.golang.org/grpc/status"
 
 	soakv1 "soakfarm/proto/soak/v1"
+	"soakfarm/scheduler/access"
 	"soakfarm/scheduler/store"
 )
 
@@ -36,12 +33,21 @@ type Config struct {
 	// Settings are the farm-wide queue settings the scheduler applies to
 	// the streams; zero means store.DefaultSettings.
 	Settings store.Settings
-	// Token, when set, is required as "authorization: Bearer TOKEN" on
-	// every call except health checks.
-	Token string
+	// Clients, when set, authenticates every call except health checks by
+	// its bearer token; nil makes every caller the implicit operator
+	// client access.LocalName, for a farm reached on loopback only.
+	Clients access.Authenticator
 	// TLS, when set, serves over TLS.
-	TLS    credentials.TransportCredentials
-	Logger *slog.Logger
+	TLS credentials.TransportCredentials
+	// MaxMessageBytes bounds each gRPC message either way; zero means
+	// DefaultMaxMessageBytes.
+	MaxMessageBytes int
+	// Limits bound what a submitted spec may ask for; zero means
+	// DefaultLimits.
+	Limits Limits
+	// Metrics, when set, receives the scheduler's Prometheus metrics.
+	Metrics prometheus.Registerer
+	Logger  *slog.Logger
 }
 
 // Server is a running scheduler.
@@ -59,8 +65,14 @@ type Server struct {
 	closeErr  error
 }
 
+// DefaultMaxMessageBytes bounds each gRPC message unless Config says
+// otherwise: room for a spec carrying STL meshes up to DefaultLimits, well
+// above gRPC's own 4 MiB default.
+const DefaultMaxMessageBytes = 64 << 20
+
 // Start sets up the farm's streams on nc, then serves the API on lis until
-// Close. lis is owned by the server from then on.
+// Close. lis is owned by the server from then on. Health reports
+// NOT_SERVING while nc is disconnected from NATS.
 func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*Server, error) {
 	if cfg.Settings == (store.Settings{}) {
 		cfg.Settings = store.DefaultSettings()
@@ -68,39 +80,79 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 	if cfg.Logger == nil {
 		cfg.Logger = slog.Default()
 	}
+	if cfg.MaxMessageBytes <= 0 {
+		cfg.MaxMessageBytes = DefaultMaxMessageBytes
+	}
+	if cfg.Limits == (Limits{}) {
+		cfg.Limits = DefaultLimits()
+	}
 	st, err := store.Setup(ctx, nc, cfg.Settings)
 	if err != nil {
 		return nil, fmt.Errorf("scheduler: %w", err)
 	}
 	life, closing := context.WithCancel(context.Background())
-	svc := &service{store: st, log: cfg.Logger, life: life}
+	svc := &service{store: st, log: cfg.Logger, life: life, limits: cfg.Limits, metrics: newMetrics()}
+	if cfg.Metrics != nil {
+		if err := svc.metrics.register(cfg.Metrics, st, nc); err != nil {
+			closing()
+			return nil, fmt.Errorf("scheduler: metrics: %w", err)
+		}
+	}
+	guard := access.Guard{Auth: cfg.Clients}
 	opts := []grpc.ServerOption{
 		// Watches may sit idle for hours while a job waits in the queue:
 		// the server pings quiet connections to find dead clients, and
 		// lets clients ping every 10 s or more, streams or not.
 		grpc.KeepaliveParams(keepalive.ServerParameters{Time: 30 * time.Second, Timeout: 10 * time.Second}),
 		grpc.KeepaliveEnforcementPolicy(keepalive.EnforcementPolicy{MinTime: 10 * time.Second, PermitWithoutStream: true}),
+		grpc.ChainUnaryInterceptor(guard.Unary), grpc.ChainStreamInterceptor(guard.Stream),
+		grpc.MaxRecvMsgSize(cfg.MaxMessageBytes), grpc.MaxSendMsgSize(cfg.MaxMessageBytes),
 	}
 	if cfg.TLS != nil {
 		opts = append(opts, grpc.Creds(cfg.TLS))
-	}
-	if cfg.Token != "" {
-		auth := tokenAuth(cfg.Token)
-		opts = append(opts, grpc.ChainUnaryInterceptor(auth.unary), grpc.ChainStreamInterceptor(auth.stream))
 	}
 	gs := grpc.NewServer(opts...)
 	soakv1.RegisterFarmServiceServer(gs, svc)
 	hs := health.NewServer()
 	healthpb.RegisterHealthServer(gs, hs)
 	reflection.Register(gs)
-	hs.SetServingStatus("", healthpb.HealthCheckResponse_SERVING)
-	hs.SetServingStatus(soakv1.FarmService_ServiceDesc.ServiceName, healthpb.HealthCheckResponse_SERVING)
 
 	s := &Server{grpc: gs, health: hs, listener: lis, service: svc, closing: closing, served: make(chan error, 1)}
+	statuses := nc.StatusChanged()
+	s.setHealth(nc.IsConnected())
+	s.bg.Go(func() { s.followNATS(life, nc, statuses) })
 	s.bg.Go(func() { svc.handleDeadLetters(life) })
 	go func() { s.served <- gs.Serve(lis) }()
-	cfg.Logger.Info("scheduler serving", "addr", lis.Addr().String())
+	cfg.Logger.Info("scheduler serving", "addr", lis.Addr().String(), "max_message_bytes", cfg.MaxMessageBytes)
 	return s, nil
+}
+
+// followNATS keeps health in step with the NATS connection until ctx
+// ends: without NATS the scheduler can neither queue nor report jobs.
+func (s *Server) followNATS(ctx context.Context, nc *nats.Conn, statuses chan nats.Status) {
+	defer nc.RemoveStatusListener(statuses)
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case st, ok := <-statuses:
+			if !ok {
+				return
+			}
+			s.setHealth(st == nats.CONNECTED)
+			s.service.log.Info("NATS connection", "status", st.String())
+		}
+	}
+}
+
+func (s *Server) setHealth(connected bool) {
+	status := healthpb.HealthCheckResponse_NOT_SERVING
+	if connected {
+		status = healthpb.HealthCheckResponse_SERVING
+	}
+	s.health.SetServingStatus("", status)
+	s.health.SetServingStatus(soakv1.FarmService_ServiceDesc.ServiceName, status)
+	s.service.metrics.natsConnected.Set(map[bool]float64{false: 0, true: 1}[connected])
 }
 
 // Addr is the address the API listens on.
@@ -134,34 +186,4 @@ func (s *Server) close(ctx context.Context) error {
 		return fmt.Errorf("scheduler: %w", err)
 	}
 	return nil
-}
-
-// tokenAuth checks the bearer token of each call.
-type tokenAuth string
-
-func (t tokenAuth) check(ctx context.Context, method string) error {
-	if strings.HasPrefix(method, "/grpc.health.v1.Health/") {
-		return nil
-	}
-	md, _ := metadata.FromIncomingContext(ctx)
-	for _, v := range md.Get("authorization") {
-		if token, ok := strings.CutPrefix(v, "Bearer "); ok && subtle.ConstantTimeCompare([]byte(token), []byte(t)) == 1 {
-			return nil
-		}
-	}
-	return status.Error(codes.Unauthenticated, "missing or wrong bearer token")
-}
-
-func (t tokenAuth) unary(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (any, error) {
-	if err := t.check(ctx, info.FullMethod); err != nil {
-		return nil, err
-	}
-	return handler(ctx, req)
-}
-
-func (t tokenAuth) stream(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, handler grpc.StreamHandler) error {
-	if err := t.check(ss.Context(), info.FullMethod); err != nil {
-		return err
-	}
-	return handler(srv, ss)
 }

@@ -3,8 +3,10 @@ package scheduler
 import (
 	"context"
 	"errors"
+	"fmt"
 	"io"
 	"log/slog"
+	"strings"
 	"time"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
@@ -15,6 +17,7 @@ import (
 
 	"soakfarm/jobspec"
 	soakv1 "soakfarm/proto/soak/v1"
+	"soakfarm/scheduler/access"
 	"soakfarm/scheduler/store"
 )
 
@@ -36,21 +39,26 @@ type service struct {
 	store *store.Store
 	log   *slog.Logger
 	// life ends when the server closes.
-	life context.Context
+	life    context.Context
+	limits  Limits
+	metrics *metrics
 }
 
 // errWatchDone stops FollowEvents after the final event.
 var errWatchDone = errors.New("watch done")
 
 func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (*soakv1.SubmitJobResponse, error) {
-	if err := validateSpec(req.GetSpec()); err != nil {
+	client := caller(ctx)
+	if err := s.validateSpec(req.GetSpec()); err != nil {
 		return nil, err
 	}
 	now := time.Now()
 	id := store.NewJobID(now)
 	key := req.GetClientKey()
+	// Keys are the client's own: another client's same key is another job.
+	scopedKey := client.Name + "/" + key
 	if key != "" {
-		owner, claimed, err := s.store.ClaimClientKey(ctx, key, id)
+		owner, claimed, err := s.store.ClaimClientKey(ctx, scopedKey, id)
 		if err != nil {
 			return nil, storeError(err)
 		}
@@ -69,6 +77,7 @@ func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (
 	}
 	job := &soakv1.Job{
 		Id:         id,
+		Owner:      client.Name,
 		ClientKey:  key,
 		Spec:       req.GetSpec(),
 		State:      soakv1.JobState_JOB_STATE_QUEUED,
@@ -89,14 +98,15 @@ func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (
 	if _, err := s.store.AppendEvent(ctx, id, &soakv1.JobEvent{
 		Time: job.GetSubmitTime(), Kind: &soakv1.JobEvent_Queued{Queued: &soakv1.JobQueued{}},
 	}); err != nil {
-		s.undoSubmit(id, key)
+		s.undoSubmit(id, scopedKey)
 		return nil, storeError(err)
 	}
 	if err := s.store.Enqueue(ctx, id); err != nil {
-		s.undoSubmit(id, key)
+		s.undoSubmit(id, scopedKey)
 		return nil, storeError(err)
 	}
-	s.log.Info("job queued", "job", id, "name", req.GetSpec().GetName())
+	s.metrics.submitted.Inc()
+	s.log.Info("job queued", "job", id, "name", req.GetSpec().GetName(), "owner", client.Name)
 	return &soakv1.SubmitJobResponse{Job: job}, nil
 }
 
@@ -116,12 +126,17 @@ func (s *service) undoSubmit(id, key string) {
 }
 
 // validateSpec turns spec problems into INVALID_ARGUMENT with one
-// BadRequest field violation per problem.
-func validateSpec(spec *soakv1.JobSpec) error {
+// BadRequest field violation per problem. A problem that only a limit
+// causes names the scheduler flag that raises the limit.
+func (s *service) validateSpec(spec *soakv1.JobSpec) error {
 	if spec == nil {
 		return invalidArgument("spec is missing", &errdetails.BadRequest_FieldViolation{Field: "spec", Description: "is required"})
 	}
-	err := jobspec.Validate(spec, jobspec.DefaultLimits())
+	// The STL limits go first: validation reads the meshes.
+	if violations := checkSTLBodies(spec, s.limits); len(violations) > 0 {
+		return invalidArgument("invalid spec:\n"+joinViolations(violations), violations...)
+	}
+	err := jobspec.Validate(spec, s.limits.Spec)
 	if err == nil {
 		return nil
 	}
@@ -129,15 +144,48 @@ func validateSpec(spec *soakv1.JobSpec) error {
 	if !errors.As(err, &ve) {
 		return status.Error(codes.InvalidArgument, err.Error())
 	}
+	hints := limitHints(spec, s.limits.Spec, ve.Problems)
 	violations := make([]*errdetails.BadRequest_FieldViolation, len(ve.Problems))
 	for i, p := range ve.Problems {
 		description := p.Message
 		if p.Value != "" {
 			description += ", got " + p.Value
 		}
+		if flag := hints[p]; flag != "" {
+			description += " (the farm's limit; the scheduler's " + flag + " raises it)"
+		}
 		violations[i] = &errdetails.BadRequest_FieldViolation{Field: p.Field, Description: description}
 	}
-	return invalidArgument("invalid spec:\n"+err.Error(), violations...)
+	return invalidArgument("invalid spec:\n"+joinViolations(violations), violations...)
+}
+
+func joinViolations(violations []*errdetails.BadRequest_FieldViolation) string {
+	lines := make([]string, len(violations))
+	for i, v := range violations {
+		lines[i] = v.GetField() + ": " + v.GetDescription()
+	}
+	return strings.Join(lines, "\n")
+}
+
+// caller is the authenticated client of a call; the guard attaches one to
+// every call it lets through.
+func caller(ctx context.Context) access.Client {
+	c, _ := access.FromContext(ctx)
+	return c
+}
+
+// accessibleJob reads a job the caller may see. Another client's job is
+// NOT_FOUND, as a missing one is, so ids of other clients' jobs reveal
+// nothing.
+func (s *service) accessibleJob(ctx context.Context, id string) (*soakv1.Job, error) {
+	job, _, err := s.store.Job(ctx, id)
+	if err != nil {
+		return nil, storeError(err)
+	}
+	if !caller(ctx).MayAccess(job.GetOwner()) {
+		return nil, storeError(fmt.Errorf("job %s: %w", id, store.ErrJobNotFound))
+	}
+	return job, nil
 }
 
 func invalidArgument(msg string, violations ...*errdetails.BadRequest_FieldViolation) error {
@@ -180,9 +228,9 @@ func (s *service) GetJob(ctx context.Context, req *soakv1.GetJobRequest) (*soakv
 	if err := checkJobID(req.GetJobId()); err != nil {
 		return nil, err
 	}
-	job, _, err := s.store.Job(ctx, req.GetJobId())
+	job, err := s.accessibleJob(ctx, req.GetJobId())
 	if err != nil {
-		return nil, storeError(err)
+		return nil, err
 	}
 	return &soakv1.GetJobResponse{Job: job}, nil
 }
@@ -190,6 +238,9 @@ func (s *service) GetJob(ctx context.Context, req *soakv1.GetJobRequest) (*soakv
 func (s *service) CancelJob(ctx context.Context, req *soakv1.CancelJobRequest) (*soakv1.CancelJobResponse, error) {
 	id := req.GetJobId()
 	if err := checkJobID(id); err != nil {
+		return nil, err
+	}
+	if _, err := s.accessibleJob(ctx, id); err != nil {
 		return nil, err
 	}
 	reason := req.GetReason()
@@ -227,7 +278,7 @@ func (s *service) CancelJob(ctx context.Context, req *soakv1.CancelJobRequest) (
 	} else {
 		s.notifyCancel(id)
 	}
-	s.log.Info("cancel requested", "job", id, "state", job.GetState().String())
+	s.log.Info("cancel requested", "job", id, "state", job.GetState().String(), "by", caller(ctx).Name)
 	return &soakv1.CancelJobResponse{Job: job}, nil
 }
 
@@ -254,6 +305,7 @@ func (s *service) ListJobs(ctx context.Context, req *soakv1.ListJobsRequest) (*s
 		return nil, invalidArgument("page_token: not a token this server gave, got "+quote(token),
 			&errdetails.BadRequest_FieldViolation{Field: "page_token", Description: "not a token this server gave"})
 	}
+	client := caller(ctx)
 	wanted := make(map[soakv1.JobState]bool, len(req.GetStates()))
 	for _, st := range req.GetStates() {
 		wanted[st] = true
@@ -276,7 +328,7 @@ func (s *service) ListJobs(ctx context.Context, req *soakv1.ListJobsRequest) (*s
 		if err != nil {
 			return nil, storeError(err)
 		}
-		if len(wanted) > 0 && !wanted[job.GetState()] {
+		if (len(wanted) > 0 && !wanted[job.GetState()]) || !client.MayAccess(job.GetOwner()) {
 			continue
 		}
 		resp.Jobs = append(resp.Jobs, job)
@@ -299,8 +351,8 @@ func (s *service) WatchJob(req *soakv1.WatchJobRequest, stream grpc.ServerStream
 	defer cancel()
 	stop := context.AfterFunc(s.life, cancel)
 	defer stop()
-	if _, _, err := s.store.Job(ctx, id); err != nil {
-		return storeError(err)
+	if _, err := s.accessibleJob(ctx, id); err != nil {
+		return err
 	}
 	go s.completeFinalEvent(ctx, id)
 
@@ -361,9 +413,9 @@ func (s *service) FetchArtifact(req *soakv1.FetchArtifactRequest, stream grpc.Se
 	if err := checkJobID(req.GetJobId()); err != nil {
 		return err
 	}
-	job, _, err := s.store.Job(ctx, req.GetJobId())
+	job, err := s.accessibleJob(ctx, req.GetJobId())
 	if err != nil {
-		return storeError(err)
+		return err
 	}
 	if job.GetState() != soakv1.JobState_JOB_STATE_FINISHED {
 		return status.Errorf(codes.FailedPrecondition, "job %s is %s; only finished jobs have result files", job.GetId(), job.GetState())

@@ -75,6 +75,9 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 		id: id, worker: w.cfg.Name, msg: msg, log: log,
 		last: q.maxDeliver > 0 && md.NumDelivered >= uint64(q.maxDeliver),
 	}
+	if md.NumDelivered > 1 {
+		w.cfg.Metrics.redeliveries.Inc()
+	}
 	job, err := w.claim(q, c, md.NumDelivered)
 	switch {
 	case errors.Is(err, store.ErrJobNotFound):
@@ -98,6 +101,8 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 	// claim and now is caught by the first heartbeat.
 	jobCtx, cancel := context.WithCancelCause(runCtx)
 	defer cancel(nil)
+	w.cfg.Metrics.running.Inc()
+	defer w.cfg.Metrics.running.Dec()
 	defer w.track(id, cancel)()
 	log.Info("job started", "attempt", c.attempt, "delivery", md.NumDelivered)
 	c.appendEvent(q, &soakv1.JobEvent{Kind: &soakv1.JobEvent_Started{Started: &soakv1.JobStarted{Worker: c.worker, Attempt: c.attempt}}})
@@ -301,6 +306,9 @@ func (w *Worker) finish(q queue, c *claim, summary *soakv1.Summary, outDir strin
 		nak(c.msg, 2*time.Second, c.log)
 		return
 	}
+	if job.GetState() == soakv1.JobState_JOB_STATE_FINISHED {
+		w.cfg.Metrics.finished(summary)
+	}
 	c.log.Info("job finished", "state", job.GetState().String(), "artifacts", len(artifacts))
 	w.ended(q, c, job)
 }
@@ -369,6 +377,7 @@ func (w *Worker) failAttempt(q queue, c *claim, runErr error) {
 	if errors.Is(err, errNotOurs) {
 		return
 	}
+	w.cfg.Metrics.failedAttempts.Inc()
 	if err != nil {
 		c.log.Error("record failed attempt", "err", err)
 		nak(c.msg, 2*time.Second, c.log)
@@ -397,6 +406,7 @@ func (w *Worker) handBack(q queue, c *claim) {
 
 // ended closes the log of an ended job and removes its queue message.
 func (w *Worker) ended(q queue, c *claim, job *soakv1.Job) {
+	w.cfg.Metrics.ended(job)
 	ctx, done := bookkeeping()
 	defer done()
 	if err := q.store.EnsureFinalEvent(ctx, job); err != nil {

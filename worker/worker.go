@@ -53,7 +53,9 @@ type Config struct {
 	// MaxJobDisk, when positive, fails a job whose result files grow
 	// larger. Either limit fails the job at once, without a retry.
 	MaxJobDisk int64
-	Logger     *slog.Logger
+	// Metrics receives the worker's series; nil keeps them unregistered.
+	Metrics *Metrics
+	Logger  *slog.Logger
 }
 
 // Worker runs jobs from the queue.
@@ -102,6 +104,9 @@ func New(nc *nats.Conn, cfg Config) *Worker {
 	}
 	if cfg.Logger == nil {
 		cfg.Logger = slog.Default()
+	}
+	if cfg.Metrics == nil {
+		cfg.Metrics, _ = NewMetrics(nil) // cannot fail unregistered
 	}
 	return &Worker{
 		nc: nc, cfg: cfg,

@@ -20,6 +20,7 @@ import (
 	"soakfarm/farmclient"
 	"soakfarm/jobspec"
 	soakv1 "soakfarm/proto/soak/v1"
+	"soakfarm/scheduler/store"
 )
 
 // Environment variables of the farm client commands: the farm's address
@@ -35,13 +36,19 @@ const defaultFarmAddr = "127.0.0.1:7431"
 
 // farmConn holds the flags every farm client command takes.
 type farmConn struct {
-	addr      string
-	plaintext bool
+	addr                   string
+	plaintext              bool
+	tlsCA, tlsCert, tlsKey string
+	maxMessage             string
 }
 
 func (fc *farmConn) register(f *pflag.FlagSet) {
 	f.StringVar(&fc.addr, "farm", "", "farm scheduler address host:port (default $"+farmEnv+", else "+defaultFarmAddr+")")
 	f.BoolVar(&fc.plaintext, "plaintext", false, "talk to a farm beyond this machine without TLS (trusted network only)")
+	f.StringVar(&fc.tlsCA, "tls-ca", "", "CA certificate (PEM) to check the farm's certificate with (default: the system's roots); implies TLS")
+	f.StringVar(&fc.tlsCert, "tls-cert", "", "client certificate (PEM) to present to the farm")
+	f.StringVar(&fc.tlsKey, "tls-key", "", "private key of --tls-cert (PEM)")
+	f.StringVar(&fc.maxMessage, "max-message-bytes", "", "largest gRPC message either way, e.g. 128MiB (default 64MiB)")
 }
 
 // dial connects to the farm named by --farm, $SOAK_FARM or the default.
@@ -54,9 +61,23 @@ func (fc *farmConn) dial(ctx context.Context) (*farmclient.Client, error) {
 		addr = defaultFarmAddr
 	}
 	var opts []farmclient.Option
-	if fc.plaintext {
+	tlsCfg, err := clientTLS(fc.tlsCA, fc.tlsCert, fc.tlsKey)
+	if err != nil {
+		return nil, withCode(ExitUsage, err)
+	}
+	switch {
+	case tlsCfg != nil && fc.plaintext:
+		return nil, withCode(ExitUsage, errors.New("--plaintext and --tls-ca/--tls-cert: choose one"))
+	case tlsCfg != nil:
+		opts = append(opts, farmclient.WithTLS(tlsCfg))
+	case fc.plaintext:
 		opts = append(opts, farmclient.WithPlaintext())
 	}
+	maxMessage, err := parseMessageBytes(fc.maxMessage)
+	if err != nil {
+		return nil, withCode(ExitUsage, err)
+	}
+	opts = append(opts, farmclient.WithMaxMessageBytes(maxMessage))
 	if token := os.Getenv(farmTokenEnv); token != "" {
 		opts = append(opts, farmclient.WithBearerToken(token))
 	}
@@ -192,11 +213,6 @@ var jobStateNames = map[string]soakv1.JobState{
 	"cancelled": soakv1.JobState_JOB_STATE_CANCELLED,
 }
 
-// stateWord is the lower-case word for a state, as --state takes it.
-func stateWord(st soakv1.JobState) string {
-	return strings.ToLower(strings.TrimPrefix(st.String(), "JOB_STATE_"))
-}
-
 func newJobsCmd(s streams) *cobra.Command {
 	var (
 		conn   farmConn
@@ -270,7 +286,7 @@ func printJobTable(w io.Writer, jobs []*soakv1.Job, now time.Time) {
 		if worker == "" {
 			worker = "-"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", j.GetId(), j.GetSpec().GetName(), stateWord(j.GetState()), submitted, worker, wall)
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", j.GetId(), j.GetSpec().GetName(), store.StateWord(j.GetState()), submitted, worker, wall)
 	}
 	tw.Flush()
 }
@@ -296,7 +312,7 @@ func newCancelCmd(s streams) *cobra.Command {
 				if err != nil {
 					return withCode(ExitFailure, err)
 				}
-				fmt.Fprintf(s.out, "%s\t%s\t%s\n", job.GetId(), job.GetSpec().GetName(), stateWord(job.GetState()))
+				fmt.Fprintf(s.out, "%s\t%s\t%s\n", job.GetId(), job.GetSpec().GetName(), store.StateWord(job.GetState()))
 			}
 			return nil
 		},

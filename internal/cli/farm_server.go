@@ -3,9 +3,9 @@ package cli
 import (
 	"context"
 	"crypto/tls"
-	"crypto/x509"
 	"errors"
 	"fmt"
+	"io"
 	"log/slog"
 	"net"
 	"os"
@@ -18,6 +18,7 @@ import (
 
 	"soakfarm/internal/localfarm"
 	"soakfarm/scheduler"
+	"soakfarm/scheduler/access"
 	"soakfarm/scheduler/store"
 	"soakfarm/worker"
 )
@@ -25,6 +26,10 @@ import (
 // natsPasswordEnv holds the NATS password when --nats-password is not
 // given, keeping it off the command line.
 const natsPasswordEnv = "SOAK_NATS_PASSWORD"
+
+// natsWorkerPasswordEnv holds the password of `soak serve`'s worker user
+// when --nats-worker-password is not given.
+const natsWorkerPasswordEnv = "SOAK_NATS_WORKER_PASSWORD"
 
 // shutdownGrace is how long the farm's processes give calls in flight and
 // jobs being handed back when they are told to stop.
@@ -54,11 +59,18 @@ func (q *queueFlags) settings() (store.Settings, error) {
 	return s, nil
 }
 
-// apiFlags secure the gRPC API.
+// apiFlags configure and secure the gRPC API.
 type apiFlags struct {
-	listen           string
-	tlsCert, tlsKey  string
-	token            string // from $SOAK_FARM_TOKEN
+	listen                       string
+	tlsCert, tlsKey, tlsClientCA string
+	tokensPath                   string
+	maxMessage                   string
+	limits                       limitFlags
+	metricsListen                string
+
+	// Set by load.
+	tokens           *access.TokenFile
+	maxMessageBytes  int
 	beyondLoopbackOK bool
 }
 
@@ -66,33 +78,59 @@ func (a *apiFlags) register(f *pflag.FlagSet) {
 	f.StringVar(&a.listen, "listen", defaultFarmAddr, "address of the gRPC API, host:port")
 	f.StringVar(&a.tlsCert, "tls-cert", "", "serve the API over TLS with this certificate (PEM)")
 	f.StringVar(&a.tlsKey, "tls-key", "", "private key of --tls-cert (PEM)")
+	f.StringVar(&a.tlsClientCA, "tls-client-ca", "", "also check client certificates that clients present against this CA (PEM); clients without one still connect")
+	f.StringVar(&a.tokensPath, "tokens", "", "token file naming the clients and their token hashes (see `soak token new`); reread on SIGHUP.\nWithout it every caller is the operator client \"local\", allowed on loopback only")
+	f.StringVar(&a.maxMessage, "max-message-bytes", "", "largest gRPC message either way, e.g. 128MiB (default 64MiB)")
+	f.StringVar(&a.metricsListen, "metrics-listen", "", "serve Prometheus metrics at http://ADDR/metrics, e.g. 127.0.0.1:9431 (default: off)")
+	a.limits.register(f)
 }
 
-// load reads the token and TLS files. Beyond loopback the API needs both a
-// token and TLS, unless allowPlain (the scheduler in a container, whose
-// port is published on the host's loopback).
+// load reads the token file and the TLS files. Beyond loopback the API
+// needs both a token file and TLS, unless allowPlain (the scheduler in a
+// container, whose port is published on the host's loopback).
 func (a *apiFlags) load(allowPlain bool) (credentials.TransportCredentials, error) {
-	a.token = os.Getenv(farmTokenEnv)
-	var creds credentials.TransportCredentials
-	if a.tlsCert != "" || a.tlsKey != "" {
-		if a.tlsCert == "" || a.tlsKey == "" {
-			return nil, errors.New("--tls-cert and --tls-key: give both or neither")
+	creds, err := serverTLS(a.tlsCert, a.tlsKey, a.tlsClientCA)
+	if err != nil {
+		return nil, err
+	}
+	if a.tokensPath != "" {
+		if a.tokens, err = access.LoadTokenFile(a.tokensPath); err != nil {
+			return nil, fmt.Errorf("--tokens: %w", err)
 		}
-		c, err := credentials.NewServerTLSFromFile(a.tlsCert, a.tlsKey)
-		if err != nil {
-			return nil, fmt.Errorf("--tls-cert/--tls-key: %w", err)
-		}
-		creds = c
+	}
+	if a.maxMessageBytes, err = parseMessageBytes(a.maxMessage); err != nil {
+		return nil, err
 	}
 	loopback, err := isLoopbackAddr(a.listen)
 	if err != nil {
 		return nil, fmt.Errorf("--listen: %w", err)
 	}
-	a.beyondLoopbackOK = loopback || (a.token != "" && creds != nil)
+	a.beyondLoopbackOK = loopback || (a.tokens != nil && creds != nil)
 	if !a.beyondLoopbackOK && !allowPlain {
-		return nil, fmt.Errorf("--listen %s is reachable from other machines; that needs a bearer token in $%s and --tls-cert/--tls-key", a.listen, farmTokenEnv)
+		return nil, fmt.Errorf("--listen %s is reachable from other machines; that needs a token file (--tokens) and TLS (--tls-cert/--tls-key)", a.listen)
 	}
 	return creds, nil
+}
+
+// clients is what the scheduler authenticates with: nil (the implicit
+// local operator) without a token file.
+func (a *apiFlags) clients() access.Authenticator {
+	if a.tokens == nil {
+		return nil
+	}
+	return a.tokens
+}
+
+// announce says on out who may call the API.
+func (a *apiFlags) announce(out io.Writer) {
+	if loopback, _ := isLoopbackAddr(a.listen); loopback {
+		fmt.Fprintln(out, "serving loopback only: other machines cannot reach this farm's API")
+	}
+	if a.tokens == nil {
+		fmt.Fprintln(out, `no token file: every caller is the operator client "local"`)
+	} else {
+		fmt.Fprintf(out, "%d client(s) from %s; send SIGHUP to reread it\n", a.tokens.Len(), a.tokens.Path())
+	}
 }
 
 // isLoopbackAddr reports whether host:port only listens on this machine.
@@ -163,13 +201,9 @@ func (n *natsFlags) connect(name string, log *slog.Logger) (*nats.Conn, error) {
 func (n *natsFlags) tlsConfig() (*tls.Config, error) {
 	cfg := &tls.Config{MinVersion: tls.VersionTLS12}
 	if n.tlsCA != "" {
-		pem, err := os.ReadFile(n.tlsCA)
+		pool, err := certPool(n.tlsCA)
 		if err != nil {
 			return nil, fmt.Errorf("--nats-tls-ca: %w", err)
-		}
-		pool := x509.NewCertPool()
-		if !pool.AppendCertsFromPEM(pem) {
-			return nil, fmt.Errorf("--nats-tls-ca: no PEM certificate in %s", n.tlsCA)
 		}
 		cfg.RootCAs = pool
 	}
@@ -203,10 +237,12 @@ func newServeCmd(s streams) *cobra.Command {
 		natsListen   string
 		natsUser     string
 		natsPassword string
-		workers      int
-		concurrency  int
-		api          apiFlags
-		queue        queueFlags
+		// The restricted user remote workers log in with.
+		natsWorkerUser, natsWorkerPassword string
+		workers                            int
+		concurrency                        int
+		api                                apiFlags
+		queue                              queueFlags
 	)
 	cmd := &cobra.Command{
 		Use:   "serve",
@@ -231,20 +267,42 @@ func newServeCmd(s streams) *cobra.Command {
 			if natsPassword == "" {
 				natsPassword = os.Getenv(natsPasswordEnv)
 			}
+			if natsWorkerPassword == "" {
+				natsWorkerPassword = os.Getenv(natsWorkerPasswordEnv)
+			}
+			if (natsWorkerUser == "") != (natsWorkerPassword == "") {
+				return withCode(ExitUsage, fmt.Errorf("--nats-worker-user and --nats-worker-password (or $%s): give both or neither", natsWorkerPasswordEnv))
+			}
 			if natsListen != "" {
 				loopback, err := isLoopbackAddr(natsListen)
 				if err != nil {
 					return withCode(ExitUsage, fmt.Errorf("--nats-listen: %w", err))
 				}
-				if !loopback && (natsUser == "" || natsPassword == "") {
-					return withCode(ExitUsage, fmt.Errorf("--nats-listen %s is reachable from other machines; that needs --nats-user and --nats-password (or $%s)", natsListen, natsPasswordEnv))
+				full := natsUser != "" && natsPassword != ""
+				if !loopback && !full && natsWorkerUser == "" {
+					return withCode(ExitUsage, fmt.Errorf("--nats-listen %s is reachable from other machines; that needs --nats-worker-user and --nats-worker-password (or $%s), or --nats-user and --nats-password (or $%s)", natsListen, natsWorkerPasswordEnv, natsPasswordEnv))
+				}
+				if natsUser != "" && natsPassword == "" {
+					return withCode(ExitUsage, fmt.Errorf("--nats-user %s needs --nats-password (or $%s)", natsUser, natsPasswordEnv))
 				}
 			}
+			limits, err := api.limits.limits()
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			reg := newMetricsRegistry()
+			stopMetrics, err := serveMetrics(api.metricsListen, reg, log)
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			defer stopMetrics()
 			farm, err := localfarm.Start(cmd.Context(), localfarm.Config{
 				DataDir: dataDir, GRPCListen: api.listen, NATSListen: natsListen,
 				NATSUser: natsUser, NATSPassword: natsPassword,
+				NATSWorkerUser: natsWorkerUser, NATSWorkerPassword: natsWorkerPassword,
 				Workers: workers, WorkerConcurrency: concurrency, Settings: settings,
-				Token: api.token, TLS: creds, Logger: log,
+				Clients: api.clients(), TLS: creds, MaxMessageBytes: api.maxMessageBytes, Limits: limits,
+				Metrics: reg, Logger: log,
 			})
 			if err != nil {
 				return withCode(ExitFailure, err)
@@ -253,10 +311,12 @@ func newServeCmd(s streams) *cobra.Command {
 			if url := farm.NATSURL(); url != "" {
 				fmt.Fprintf(s.out, "NATS for remote workers on %s\n", url)
 			}
-			if loopback, _ := isLoopbackAddr(api.listen); loopback {
-				fmt.Fprintln(s.out, "serving loopback only: other machines cannot reach this farm's API")
+			api.announce(s.out)
+			if api.metricsListen != "" {
+				fmt.Fprintf(s.out, "metrics on http://%s/metrics\n", api.metricsListen)
 			}
 			fmt.Fprintf(s.out, "farm state in %s; %d local worker(s); interrupt to stop\n", dataDir, workers)
+			reloadOnHangup(cmd.Context(), api.tokens, log)
 			<-cmd.Context().Done()
 			log.Info("stopping the farm")
 			if err := closeWithGrace(farm.Close); err != nil {
@@ -269,8 +329,10 @@ func newServeCmd(s streams) *cobra.Command {
 	f.StringVar(&dataDir, "data", "soak-data", "folder of the farm's state (jobs, events, result files)")
 	api.register(f)
 	f.StringVar(&natsListen, "nats-listen", "", "also let remote workers reach NATS at host:port (default: in-process only)")
-	f.StringVar(&natsUser, "nats-user", "", "NATS user name remote workers must give")
-	f.StringVar(&natsPassword, "nats-password", "", "NATS password remote workers must give (default $"+natsPasswordEnv+")")
+	f.StringVar(&natsUser, "nats-user", "", "NATS user with full rights, for schedulers in other processes")
+	f.StringVar(&natsPassword, "nats-password", "", "password of --nats-user (default $"+natsPasswordEnv+")")
+	f.StringVar(&natsWorkerUser, "nats-worker-user", "", "NATS user for remote workers, with only the rights a worker needs")
+	f.StringVar(&natsWorkerPassword, "nats-worker-password", "", "password of --nats-worker-user (default $"+natsWorkerPasswordEnv+")")
 	f.IntVar(&workers, "workers", 1, "local workers")
 	f.IntVar(&concurrency, "concurrency", 1, "jobs each local worker runs at once")
 	queue.register(f)
@@ -304,6 +366,16 @@ func newSchedulerCmd(s streams) *cobra.Command {
 			if err != nil {
 				return withCode(ExitUsage, err)
 			}
+			limits, err := api.limits.limits()
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			reg := newMetricsRegistry()
+			stopMetrics, err := serveMetrics(api.metricsListen, reg, log)
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			defer stopMetrics()
 			nc, err := conn.connect("soak-scheduler", log)
 			if err != nil {
 				return withCode(ExitFailure, err)
@@ -314,13 +386,16 @@ func newSchedulerCmd(s streams) *cobra.Command {
 				return withCode(ExitFailure, fmt.Errorf("--listen: %w", err))
 			}
 			srv, err := scheduler.Start(cmd.Context(), nc, lis, scheduler.Config{
-				Settings: settings, Token: api.token, TLS: creds, Logger: log,
+				Settings: settings, Clients: api.clients(), TLS: creds,
+				MaxMessageBytes: api.maxMessageBytes, Limits: limits, Metrics: reg, Logger: log,
 			})
 			if err != nil {
 				lis.Close()
 				return withCode(ExitFailure, err)
 			}
 			fmt.Fprintf(s.out, "farm API on %s\n", srv.Addr())
+			api.announce(s.out)
+			reloadOnHangup(cmd.Context(), api.tokens, log)
 			<-cmd.Context().Done()
 			if err := closeWithGrace(srv.Close); err != nil {
 				return withCode(ExitFailure, err)
@@ -340,6 +415,7 @@ func newWorkerCmd(s streams) *cobra.Command {
 		cfg                      worker.Config
 		workDir                  string
 		maxJobMemory, maxJobDisk string
+		metricsListen            string
 	)
 	cmd := &cobra.Command{
 		Use:   "worker",
@@ -370,6 +446,15 @@ func newWorkerCmd(s streams) *cobra.Command {
 			if cfg.Name == "" {
 				cfg.Name = worker.DefaultName()
 			}
+			reg := newMetricsRegistry()
+			stopMetrics, err := serveMetrics(metricsListen, reg, log)
+			if err != nil {
+				return withCode(ExitUsage, err)
+			}
+			defer stopMetrics()
+			if cfg.Metrics, err = worker.NewMetrics(reg); err != nil {
+				return withCode(ExitFailure, err)
+			}
 			nc, err := conn.connect("soak-worker "+cfg.Name, log)
 			if err != nil {
 				return withCode(ExitFailure, err)
@@ -387,6 +472,7 @@ func newWorkerCmd(s streams) *cobra.Command {
 	f.StringVar(&cfg.Name, "name", "", "worker name shown in job records (default host-pid)")
 	f.IntVar(&cfg.Threads, "threads", 0, "solver threads per job (default: cores / concurrency)")
 	f.StringVar(&workDir, "work-dir", "", "folder for result files before upload (default: system temporary folder)")
+	f.StringVar(&metricsListen, "metrics-listen", "", "serve Prometheus metrics at http://ADDR/metrics, e.g. 127.0.0.1:9432 (default: off)")
 	f.StringVar(&maxJobMemory, "max-job-memory", "", "fail jobs whose grid memory estimate is larger, e.g. 2GiB (default: no limit)")
 	f.StringVar(&maxJobDisk, "max-job-disk", "", "fail jobs whose result files grow larger, e.g. 500MiB (default: no limit)")
 	return cmd

@@ -247,9 +247,14 @@ func TestServeRefusesOpenListenersWithoutCredentials(t *testing.T) {
 		args []string
 		want string
 	}{
-		{"API on all interfaces", []string{"--listen", "0.0.0.0:0"}, "needs a bearer token"},
-		{"NATS on all interfaces", []string{"--listen", "127.0.0.1:0", "--nats-listen", "0.0.0.0:0"}, "needs --nats-user and --nats-password"},
-		{"NATS user without password", []string{"--listen", "127.0.0.1:0", "--nats-listen", ":0", "--nats-user", "farm"}, "needs --nats-user and --nats-password"},
+		{"API on all interfaces", []string{"--listen", "0.0.0.0:0"}, "needs a token file (--tokens) and TLS (--tls-cert/--tls-key)"},
+		{"API with tokens but no TLS", []string{"--listen", "0.0.0.0:0", "--tokens", "testdata/tokens.yaml"}, "needs a token file (--tokens) and TLS (--tls-cert/--tls-key)"},
+		{"NATS on all interfaces", []string{"--listen", "127.0.0.1:0", "--nats-listen", "0.0.0.0:0"}, "needs --nats-worker-user and --nats-worker-password"},
+		{"NATS user without password", []string{"--listen", "127.0.0.1:0", "--nats-listen", ":0", "--nats-user", "farm"}, "or --nats-user and --nats-password"},
+		{"worker user without password", []string{"--listen", "127.0.0.1:0", "--nats-worker-user", "w"}, "--nats-worker-user and --nats-worker-password"},
+		{"client CA without certificate", []string{"--listen", "127.0.0.1:0", "--tls-client-ca", "ca.pem"}, "--tls-client-ca needs --tls-cert and --tls-key"},
+		{"message limit too small", []string{"--listen", "127.0.0.1:0", "--max-message-bytes", "1KiB"}, "--max-message-bytes: must be from 1MiB to 2GiB, got 1KiB"},
+		{"bad token file", []string{"--listen", "127.0.0.1:0", "--tokens", "testdata/tokens-bad.yaml"}, "clients[1].token_sha256: want 64 hex digits"},
 		{"ack wait too short", []string{"--listen", "127.0.0.1:0", "--ack-wait", "10ms"}, "--ack-wait: must be at least 1s, got 10ms"},
 	}
 	for _, tc := range tests {

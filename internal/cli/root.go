@@ -83,7 +83,7 @@ func newRoot(s streams) *cobra.Command {
 		newRunCmd(s),
 		newEstimateCmd(s),
 		newSubmitCmd(s), newWatchCmd(s), newJobsCmd(s), newCancelCmd(s), newFetchCmd(s), newDemoCmd(s),
-		newServeCmd(s), newSchedulerCmd(s), newWorkerCmd(s), newBrokerCmd(s),
+		newServeCmd(s), newSchedulerCmd(s), newWorkerCmd(s), newBrokerCmd(s), newTokenCmd(s),
 	)
 	return root
 }

@@ -6,6 +6,8 @@ package localfarm
 
 import (
 	"context"
+	"crypto/rand"
+	"encoding/base64"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -18,9 +20,11 @@ import (
 
 	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
+	"github.com/prometheus/client_golang/prometheus"
 	"google.golang.org/grpc/credentials"
 
 	"soakfarm/scheduler"
+	"soakfarm/scheduler/access"
 	"soakfarm/scheduler/store"
 	"soakfarm/worker"
 )
@@ -35,9 +39,13 @@ type Config struct {
 	// NATSListen is "" to keep NATS in-process, or "host:port" (port 0
 	// picks one) to let remote workers connect.
 	NATSListen string
-	// NATSUser and NATSPassword, when set, are required of every NATS
-	// client, the farm's own included.
+	// NATSUser and NATSPassword, when set, are a NATS user with full
+	// rights, for the farm itself and schedulers in other processes.
 	NATSUser, NATSPassword string
+	// NATSWorkerUser and NATSWorkerPassword, when set, are a NATS user
+	// with only the rights a worker needs (store.WorkerPermissions), for
+	// remote workers.
+	NATSWorkerUser, NATSWorkerPassword string
 	// Workers is the number of local workers (0 allowed).
 	Workers int
 	// WorkerConcurrency is the number of jobs per local worker; default 1.
@@ -46,10 +54,16 @@ type Config struct {
 	Settings store.Settings
 	// Runner computes jobs in the local workers; nil runs the pipeline.
 	Runner worker.Runner
-	// Token and TLS secure the gRPC API (see scheduler.Config).
-	Token  string
-	TLS    credentials.TransportCredentials
-	Logger *slog.Logger
+	// Clients, TLS, MaxMessageBytes and Limits configure the gRPC API
+	// (see scheduler.Config).
+	Clients         access.Authenticator
+	TLS             credentials.TransportCredentials
+	MaxMessageBytes int
+	Limits          scheduler.Limits
+	// Metrics, when set, receives the scheduler's and the local workers'
+	// series.
+	Metrics prometheus.Registerer
+	Logger  *slog.Logger
 }
 
 // Farm is a running local farm.
@@ -73,6 +87,12 @@ func Start(ctx context.Context, cfg Config) (*Farm, error) {
 	}
 	if cfg.GRPCListen == "" {
 		cfg.GRPCListen = "127.0.0.1:0"
+	}
+	if cfg.NATSWorkerUser != "" && cfg.NATSUser == "" {
+		// With any user configured every client must log in, the farm's
+		// own connection too: it gets a full-rights user of its own whose
+		// password never leaves this process.
+		cfg.NATSUser, cfg.NATSPassword = internalUser, randomPassword()
 	}
 	ns, err := startNATS(cfg)
 	if err != nil {
@@ -99,11 +119,18 @@ func Start(ctx context.Context, cfg Config) (*Farm, error) {
 		return fail(fmt.Errorf("localfarm: listen for gRPC: %w", err))
 	}
 	f.scheduler, err = scheduler.Start(ctx, f.nc, lis, scheduler.Config{
-		Settings: cfg.Settings, Token: cfg.Token, TLS: cfg.TLS, Logger: cfg.Logger,
+		Settings: cfg.Settings, Clients: cfg.Clients, TLS: cfg.TLS,
+		MaxMessageBytes: cfg.MaxMessageBytes, Limits: cfg.Limits,
+		Metrics: cfg.Metrics, Logger: cfg.Logger,
 	})
 	if err != nil {
 		lis.Close()
 		return fail(fmt.Errorf("localfarm: %w", err))
+	}
+	workerMetrics, err := worker.NewMetrics(cfg.Metrics)
+	if err != nil {
+		f.scheduler.Close(ctx)
+		return fail(fmt.Errorf("localfarm: worker metrics: %w", err))
 	}
 	workCtx, stop := context.WithCancel(context.Background())
 	f.stopWorkers = stop
@@ -113,6 +140,7 @@ func Start(ctx context.Context, cfg Config) (*Farm, error) {
 			Name:        fmt.Sprintf("%s-local-%d", host, i+1),
 			Concurrency: cfg.WorkerConcurrency,
 			Runner:      cfg.Runner,
+			Metrics:     workerMetrics,
 			Logger:      cfg.Logger,
 		})
 		f.workers.Go(func() {
@@ -145,10 +173,9 @@ func startNATS(cfg Config) (*server.Server, error) {
 		// write acknowledged but not yet on disk.
 		SyncAlways: true,
 		// The embedding process handles signals and shuts down in order.
-		NoSigs:   true,
-		NoLog:    true,
-		Username: cfg.NATSUser,
-		Password: cfg.NATSPassword,
+		NoSigs: true,
+		NoLog:  true,
+		Users:  natsUsers(cfg),
 	}
 	if cfg.NATSListen == "" {
 		opts.DontListen = true
@@ -218,4 +245,34 @@ func (f *Farm) Close(ctx context.Context) error {
 	f.nats.Shutdown()
 	f.nats.WaitForShutdown()
 	return errors.Join(errs...)
+}
+
+// internalUser names the full-rights NATS user a farm makes for itself
+// when only a worker user is configured.
+const internalUser = "soak-farm"
+
+func randomPassword() string {
+	b := make([]byte, 24)
+	rand.Read(b) // never fails (crypto/rand documents it)
+	return base64.RawURLEncoding.EncodeToString(b)
+}
+
+// natsUsers are the NATS server's users: none (no log-in) unless a user is
+// configured; the worker user gets only store.WorkerPermissions.
+func natsUsers(cfg Config) []*server.User {
+	var users []*server.User
+	if cfg.NATSUser != "" {
+		users = append(users, &server.User{Username: cfg.NATSUser, Password: cfg.NATSPassword})
+	}
+	if cfg.NATSWorkerUser != "" {
+		p := store.WorkerPermissions()
+		users = append(users, &server.User{
+			Username: cfg.NATSWorkerUser, Password: cfg.NATSWorkerPassword,
+			Permissions: &server.Permissions{
+				Publish:   &server.SubjectPermission{Allow: p.Publish},
+				Subscribe: &server.SubjectPermission{Allow: p.Subscribe},
+			},
+		})
+	}
+	return users
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"strings"
 
 	"github.com/nats-io/nats.go/jetstream"
 	"google.golang.org/protobuf/proto"
@@ -21,6 +22,12 @@ func IsFinal(state soakv1.JobState) bool {
 		return true
 	}
 	return false
+}
+
+// StateWord is the lower-case word for a state ("queued", "running",
+// ...), as command lines and metric labels show it.
+func StateWord(st soakv1.JobState) string {
+	return strings.ToLower(strings.TrimPrefix(st.String(), "JOB_STATE_"))
 }
 
 // IsFinalEvent reports whether ev is the last event a job gets.

@@ -304,6 +304,26 @@ func (s *Store) JobIDs(ctx context.Context) ([]string, error) {
 	return ids, nil
 }
 
+// CountByState counts the jobs in each state.
+func (s *Store) CountByState(ctx context.Context) (map[soakv1.JobState]int, error) {
+	ids, err := s.JobIDs(ctx)
+	if err != nil {
+		return nil, err
+	}
+	counts := make(map[soakv1.JobState]int)
+	for _, id := range ids {
+		job, _, err := s.Job(ctx, id)
+		if errors.Is(err, ErrJobNotFound) {
+			continue // removed since the listing
+		}
+		if err != nil {
+			return nil, err
+		}
+		counts[job.GetState()]++
+	}
+	return counts, nil
+}
+
 // ClaimClientKey maps key to id unless key is mapped already. It returns
 // the id the key maps to and whether this call made the mapping.
 func (s *Store) ClaimClientKey(ctx context.Context, key, id string) (string, bool, error) {

@@ -50,16 +50,6 @@ type Estimate struct {
 	InitialK, FluidK float64
 }
 
-// FromSpec estimates a job from its spec alone, without a mesh or a solve.
-// The spec should have passed jobspec validation; errors name the field.
-func FromSpec(spec *soakv1.JobSpec) (*Estimate, error) {
-	solid, err := mesh.SolidFromSpec(spec.GetPart())
-	if err != nil {
-		return nil, err
-	}
-	return New(spec, solid, MaterialFromSpec(spec.GetMaterial()))
-}
-
 // MaterialFromSpec converts a spec's material into solver properties: a
 // constant, or the table with its temperatures in kelvin.
 func MaterialFromSpec(m *soakv1.Material) solver.Material {
@@ -84,14 +74,21 @@ func curveFromSpec(constant *float64, table []*soakv1.TablePoint) solver.Curve {
 
 // New estimates a job whose part is solid and whose material is mat (the
 // job's own, so that a verification estimates what the solve computed).
-func New(spec *soakv1.JobSpec, solid mesh.Solid, mat solver.Material) (*Estimate, error) {
-	selectors, err := mesh.SelectorsFromSpec(spec.GetExposure())
-	if err != nil {
-		return nil, err
-	}
-	areas, err := exposedAreas(solid, selectors)
-	if err != nil {
-		return nil, err
+//
+// areas, when not nil, holds the true area each exposure entry covers (as
+// a mesh finds it, for parts whose selected areas have no closed form);
+// nil works them out from the solid.
+func New(spec *soakv1.JobSpec, solid mesh.Solid, mat solver.Material, areas []float64) (*Estimate, error) {
+	if areas == nil {
+		selectors, err := mesh.SelectorsFromSpec(spec.GetExposure())
+		if err != nil {
+			return nil, err
+		}
+		if areas, err = exposedAreas(solid, selectors); err != nil {
+			return nil, err
+		}
+	} else if len(areas) != len(spec.GetExposure()) {
+		return nil, fmt.Errorf("estimate: %d exposed areas for %d exposure entries", len(areas), len(spec.GetExposure()))
 	}
 	initial := spec.GetInitialC() + zeroCelsius
 	ex := combine(spec.GetExposure(), areas, initial)
@@ -129,6 +126,7 @@ func New(spec *soakv1.JobSpec, solid mesh.Solid, mat solver.Material) (*Estimate
 	h.LumpedApplies = h.BiotNumber < LumpedBiotLimit
 	e := &Estimate{Hand: h, InitialK: initial, FluidK: ex.fluid}
 	h.Notes = notes(spec, solid, mat, ex, h)
+	var err error
 	if h.Milestones, err = e.milestones(spec, solid, ex.firstChange); err != nil {
 		return nil, err
 	}

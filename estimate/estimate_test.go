@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"soakfarm/jobspec"
+	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -21,7 +22,7 @@ func load(t *testing.T, name string) *Estimate {
 	if err := jobspec.Validate(spec, jobspec.DefaultLimits()); err != nil {
 		t.Fatal(err)
 	}
-	e, err := FromSpec(spec)
+	e, err := fromSpec(spec)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -190,7 +191,7 @@ func TestNoExchange(t *testing.T) {
 		t.Fatal(err)
 	}
 	spec.Exposure[0].HWM2K = 0
-	if _, err := FromSpec(spec); !errors.Is(err, ErrNoExchange) {
+	if _, err := fromSpec(spec); !errors.Is(err, ErrNoExchange) {
 		t.Errorf("FromSpec without exchange: got %v, want ErrNoExchange", err)
 	}
 }
@@ -207,4 +208,13 @@ func TestWriteText(t *testing.T) {
 			t.Errorf("text lacks %q:\n%s", want, b.String())
 		}
 	}
+}
+
+// fromSpec estimates a job whose part is one primitive shape.
+func fromSpec(spec *soakv1.JobSpec) (*Estimate, error) {
+	solid, err := mesh.SolidFromSpec(spec.GetPart())
+	if err != nil {
+		return nil, err
+	}
+	return New(spec, solid, MaterialFromSpec(spec.GetMaterial()), nil)
 }

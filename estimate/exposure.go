@@ -16,6 +16,11 @@ import (
 // and each piece goes to the last selector that selects it, as the mesh
 // assigns faces.
 func exposedAreas(solid mesh.Solid, selectors []mesh.Selector) ([]float64, error) {
+	for i, s := range selectors {
+		if len(s.Bodies) > 0 || len(s.Solids) > 0 || s.Region != nil {
+			return nil, fmt.Errorf("exposure[%d]: selects faces by body, STL solid or region; the area it covers is known only once the part is meshed (soak run reports it)", i)
+		}
+	}
 	const rest = 6
 	var pieces [rest + 1]float64
 	pieces[rest] = solid.Area()

@@ -47,7 +47,7 @@ func refine(ctx context.Context, spec *soakv1.JobSpec, cellSize float64, coarse 
 		return nil, fmt.Errorf("refine: %w", err)
 	}
 	defer os.RemoveAll(dir)
-	fineSum, err := run(ctx, fine, dir, Options{Threads: opt.Threads, skipChecks: true})
+	fineSum, err := run(ctx, fine, dir, Options{Threads: opt.Threads, SpecDir: opt.SpecDir, skipChecks: true})
 	if err != nil {
 		return nil, fmt.Errorf("refine at cell size %g m: %w", cellSize/refineRatio, err)
 	}
@@ -63,7 +63,7 @@ func refine(ctx context.Context, spec *soakv1.JobSpec, cellSize float64, coarse 
 	} else {
 		other.TimeStepping.Scheme = solver.BDF2
 	}
-	otherSum, err := run(ctx, other, dir, Options{Threads: opt.Threads, skipChecks: true})
+	otherSum, err := run(ctx, other, dir, Options{Threads: opt.Threads, SpecDir: opt.SpecDir, skipChecks: true})
 	if err != nil {
 		return nil, fmt.Errorf("refine with scheme %s: %w", other.TimeStepping.Scheme, err)
 	}

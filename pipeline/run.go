@@ -220,6 +220,7 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 		return nil, err
 	}
 	sum := m.summary(rows[len(rows)-1], watches, out, stopReason)
+	m.AddGeometry(sum)
 	if opt.skipChecks {
 		sum.Artifacts = artifacts
 		return sum, nil
@@ -227,7 +228,8 @@ func run(ctx context.Context, spec *soakv1.JobSpec, outDir string, opt Options) 
 	v, err := verify.Run(ctx, verify.Input{
 		Spec: spec, Solid: m.Solid, CellSize: g.CellSize, Material: prob.Materials[0],
 		Milestones: sum.GetMilestones(), EnergyImbalance: out.EnergyImbalance, EndTime: out.EndTime,
-		Threads: opt.Threads,
+		ExposedAreas: m.exposedAreas(),
+		Threads:      opt.Threads,
 	})
 	switch {
 	case ctx.Err() != nil:
@@ -393,4 +395,15 @@ func (m *Model) summary(last report.Row, watches []*milestoneWatch, out *solver.
 	}
 	s.EnergyImbalance = finiteOr(s.EnergyImbalance, 0)
 	return s
+}
+
+// exposedAreas is the true area each exposure entry covers, by the mesh.
+func (m *Model) exposedAreas() []float64 {
+	areas := make([]float64, len(m.Spec.GetExposure()))
+	for _, grp := range m.Grid.Groups {
+		if grp.Exposure >= 0 {
+			areas[grp.Exposure] += grp.TrueArea
+		}
+	}
+	return areas
 }

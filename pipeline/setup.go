@@ -292,3 +292,13 @@ func (m *Model) AddGeometry(s *soakv1.Summary) {
 		s.Bodies = append(s.Bodies, bs)
 	}
 }
+
+// Part builds spec's part and returns its solid and the material of its
+// first region: what hand estimates need, without a mesh.
+func Part(spec *soakv1.JobSpec, specDir string) (mesh.Solid, solver.Material, error) {
+	ps, err := setupPart(spec, specDir)
+	if err != nil {
+		return nil, solver.Material{}, err
+	}
+	return ps.solid, ps.materials[0], nil
+}

@@ -67,6 +67,9 @@ type Input struct {
 	// EnergyImbalance and EndTime (s) are the job's solver outcome.
 	EnergyImbalance float64
 	EndTime         float64
+	// ExposedAreas, when set, is the true area each exposure entry covers
+	// as the job's mesh found it (see estimate.New).
+	ExposedAreas []float64
 	// Threads bounds the cross-check solver's goroutines; 0 uses every core.
 	Threads int
 }
@@ -81,7 +84,7 @@ func Run(ctx context.Context, in Input) (*soakv1.Verification, error) {
 	if !(in.CellSize > 0) {
 		return nil, fmt.Errorf("verify: cell size must be positive, got %g m", in.CellSize)
 	}
-	est, err := estimate.New(in.Spec, in.Solid, in.Material)
+	est, err := estimate.New(in.Spec, in.Solid, in.Material, in.ExposedAreas)
 	if err != nil {
 		return nil, fmt.Errorf("verify: estimate: %w", err)
 	}

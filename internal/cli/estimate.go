@@ -2,11 +2,13 @@ package cli
 
 import (
 	"fmt"
+	"path/filepath"
 
 	"github.com/spf13/cobra"
 
 	"soakfarm/estimate"
 	"soakfarm/jobspec"
+	"soakfarm/pipeline"
 )
 
 func newEstimateCmd(s streams) *cobra.Command {
@@ -23,7 +25,11 @@ func newEstimateCmd(s streams) *cobra.Command {
 			if err != nil {
 				return err
 			}
-			e, err := estimate.FromSpec(spec)
+			solid, mat, err := pipeline.Part(spec, filepath.Dir(args[0]))
+			if err != nil {
+				return withCode(ExitUsage, fmt.Errorf("%s: %w", args[0], err))
+			}
+			e, err := estimate.New(spec, solid, mat, nil)
 			if err != nil {
 				return withCode(ExitUsage, fmt.Errorf("%s: %w", args[0], err))
 			}

@@ -49,7 +49,7 @@ func newRunCmd(s streams) *cobra.Command {
 				outDir = "soak-out"
 			}
 			var bar *progressbar.ProgressBar
-			opt := pipeline.Options{Threads: threads}
+			opt := pipeline.Options{Threads: threads, SpecDir: filepath.Dir(args[0])}
 			if !quiet {
 				bar = newSimBar(s.err, spec.GetName(), spec.GetEndS())
 				opt.Progress = func(p *soakv1.JobProgress) { updateSimBar(bar, p) }
@@ -87,6 +87,11 @@ func loadSpec(path string, lim jobspec.Limits) (*soakv1.JobSpec, error) {
 	spec, err := jobspec.Load(path)
 	if err != nil {
 		return nil, withCode(ExitUsage, err)
+	}
+	// STL files travel inside the spec, so a farm worker sees the same part
+	// and validation knows the part's size.
+	if err := jobspec.InlineFiles(spec, filepath.Dir(path)); err != nil {
+		return nil, withCode(ExitUsage, fmt.Errorf("%s: %w", path, err))
 	}
 	if err := jobspec.Validate(spec, lim); err != nil {
 		return nil, withCode(ExitUsage, fmt.Errorf("%s: the spec has problems:\n%w", path, err))

@@ -395,6 +395,11 @@ func (c *checker) grid(spec *soakv1.JobSpec, lim Limits) {
 	// The setting is in the message rather than in Value: it is not wrong
 	// by itself, only too fine for the limits.
 	grid := fmt.Sprintf("%s %s makes a grid of %.0f × %.0f × %.0f = %s cells", field, value, n[0], n[1], n[2], countText(cells))
+	if spec.GetRefine() {
+		// Refining solves again at half the cell size: eight times the cells.
+		cells *= 8
+		grid = fmt.Sprintf("%s %s with refine: true makes a second grid of %.0f × %.0f × %.0f = %s cells", field, value, 2*n[0], 2*n[1], 2*n[2], countText(cells))
+	}
 	const coarsen = "coarsen the grid (fewer cells_across or a larger cell_size_m)"
 	if lim.MaxCells > 0 && cells > float64(lim.MaxCells) {
 		c.add(field, "", fmt.Sprintf("%s, over the limit of %s cells; %s", grid, countText(float64(lim.MaxCells)), coarsen))

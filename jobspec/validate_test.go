@@ -3,6 +3,7 @@ package jobspec_test
 import (
 	"errors"
 	"math"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -487,5 +488,24 @@ func TestCellSize(t *testing.T) {
 	spec.Part = nil
 	if h := jobspec.CellSize(spec); h != 0 {
 		t.Errorf("CellSize without a part = %g, want 0", h)
+	}
+}
+
+// refine: true solves again at half the cell size, so the grid limits
+// apply to eight times the cells (2³ for halving each edge).
+func TestRefineCountsTheFineGrid(t *testing.T) {
+	t.Parallel()
+	spec, err := jobspec.Load(filepath.Join("..", "testdata", "specs", "bead-tray-quench.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lim := jobspec.Limits{MaxCells: 40 * 40 * 40 * 2} // the 40³ box passes, 80³ does not
+	if err := jobspec.Validate(spec, lim); err != nil {
+		t.Fatalf("without refine: %v", err)
+	}
+	spec.Refine = true
+	err = jobspec.Validate(spec, lim)
+	if err == nil || !strings.Contains(err.Error(), "80 × 80 × 80") {
+		t.Fatalf("with refine: got %v, want the 80³ grid refused", err)
 	}
 }

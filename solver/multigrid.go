@@ -30,7 +30,7 @@ import (
 
 const (
 	// maxCoarseCells is the size of the coarsest level, solved by Cholesky.
-	maxCoarseCells = 64
+	maxCoarseCells = 16
 	// smoothDegree is the degree of the Chebyshev smoother before and
 	// after the coarse correction.
 	smoothDegree = 2
@@ -284,29 +284,53 @@ func (mg *multigrid) smooth(l *mgLevel, fromZero bool) {
 	}
 }
 
+// rows are the seven equal-length views of a level's arrays that one span
+// of the 7-point stencil reads: the cells and their six neighbours'
+// values, the cells' diagonal and conductances and the lower neighbours'
+// conductances. Equal lengths let the compiler drop the bounds checks.
+type rows struct {
+	x, xw, xe, xs, xn, xd, xu       []float32
+	diag, gx, gxw, gy, gys, gz, gzd []float32
+}
+
+func win(v []float32, at, n int) []float32 { return v[at : at+n : at+n] }
+
+func (l *mgLevel) rows(sp span) rows {
+	lo, n, nx, nxy := sp.lo, sp.hi-sp.lo, l.nx, l.nxy
+	x := l.x
+	return rows{
+		x: win(x, lo, n), xw: win(x, lo-1, n), xe: win(x, lo+1, n), xs: win(x, lo-nx, n), xn: win(x, lo+nx, n),
+		xd: win(x, lo-nxy, n), xu: win(x, lo+nxy, n),
+		diag: win(l.diag, lo, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
+		gys: win(l.gy, lo-nx, n), gz: win(l.gz, lo, n), gzd: win(l.gz, lo-nxy, n),
+	}
+}
+
 // smooth runs Chebyshev step l.step on slab w: d ← cd·d + cr·D⁻¹(b − A·x),
 // x' = x + d.
 func (l *mgLevel) smooth(w int) {
-	nx, nxy := l.nx, l.nxy
-	diag, gx, gy, gz := l.diag, l.gx, l.gy, l.gz
-	x, xn, b, d := l.x, l.xNext, l.b, l.d
 	cd, cr := l.cd[l.step], l.cr[l.step]
 	for _, sp := range l.slabs[w] {
+		n := sp.hi - sp.lo
+		b := win(l.b, sp.lo, n)
+		d, next := win(l.d, sp.lo, n)[:len(b)], win(l.xNext, sp.lo, n)[:len(b)]
 		if l.fromZero {
-			for c := sp.lo; c < sp.hi; c++ {
-				v := cr * b[c] / diag[c]
-				d[c], xn[c] = v, v
+			diag := win(l.diag, sp.lo, n)[:len(b)]
+			for i := range b {
+				v := cr * b[i] / diag[i]
+				d[i], next[i] = v, v
 			}
 			continue
 		}
-		for c := sp.lo; c < sp.hi; c++ {
-			r := b[c] - diag[c]*x[c] + gx[c]*x[c+1] + gx[c-1]*x[c-1] +
-				gy[c]*x[c+nx] + gy[c-nx]*x[c-nx] + gz[c]*x[c+nxy] + gz[c-nxy]*x[c-nxy]
-			v := cr * r / diag[c]
-			if cd != 0 {
-				v += cd * d[c]
-			}
-			d[c], xn[c] = v, x[c]+v
+		a := l.rows(sp)
+		// Reslicing to len(b) proves every index in range.
+		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
+		diag, gx, gxw, gy, gys, gz, gzd := a.diag[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
+		for i := range b {
+			r := b[i] - diag[i]*x[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
+				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
+			v := cr*r/diag[i] + cd*d[i]
+			d[i], next[i] = v, x[i]+v
 		}
 	}
 }
@@ -314,14 +338,18 @@ func (l *mgLevel) smooth(w int) {
 // residual sets d = scale·(b − A·x) on slab w: the residual as restriction
 // takes it.
 func (l *mgLevel) residual(w int) {
-	nx, nxy := l.nx, l.nxy
-	diag, gx, gy, gz := l.diag, l.gx, l.gy, l.gz
-	x, b, d, scale := l.x, l.b, l.d, l.scale
 	for _, sp := range l.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
-			r := b[c] - diag[c]*x[c] + gx[c]*x[c+1] + gx[c-1]*x[c-1] +
-				gy[c]*x[c+nx] + gy[c-nx]*x[c-nx] + gz[c]*x[c+nxy] + gz[c-nxy]*x[c-nxy]
-			d[c] = scale[c] * r
+		n := sp.hi - sp.lo
+		b := win(l.b, sp.lo, n)
+		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.lo, n)[:len(b)]
+		a := l.rows(sp)
+		// Reslicing to len(b) proves every index in range.
+		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
+		diag, gx, gxw, gy, gys, gz, gzd := a.diag[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
+		for i := range b {
+			r := b[i] - diag[i]*x[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
+				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
+			d[i] = scale[i] * r
 		}
 	}
 }
@@ -392,19 +420,36 @@ func (l *mgLevel) restrict(w int) {
 	f := l.factor
 	d := l.d
 	for _, sp := range c.slabs[w] {
+		// The up to 16 fine rows that feed this coarse row, with their
+		// weights along y and z.
 		ys, wys, ny := restriction(sp.y, f[1], l.n[1])
 		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
+		var rowAt [16]int
+		var rowWeight [16]float32
+		m := 0
+		for a := range nz {
+			for b := range ny {
+				rowAt[m], rowWeight[m] = l.nxy+l.nx*(ys[b]+l.n[1]*zs[a]), wzs[a]*wys[b]
+				m++
+			}
+		}
 		for I := sp.lo; I < sp.hi; I++ {
-			xs, wxs, nxs := restriction(I-sp.rowStart, f[0], l.n[0])
+			ci := I - sp.rowStart
 			var sum float32
-			for a := range nz {
-				for b := range ny {
-					row := l.nxy + l.nx*(ys[b]+l.n[1]*zs[a])
+			if x0 := 2*ci - 1; f[0] == 2 && x0 >= 0 && x0+3 < l.n[0] {
+				// away from the box's ends: all four taps
+				for r := range m {
+					t := d[rowAt[r]+x0 : rowAt[r]+x0+4 : rowAt[r]+x0+4]
+					sum += rowWeight[r] * (0.25*(t[0]+t[3]) + 0.75*(t[1]+t[2]))
+				}
+			} else {
+				xs, wxs, nxs := restriction(ci, f[0], l.n[0])
+				for r := range m {
 					var s float32
 					for e := range nxs {
-						s += wxs[e] * d[row+xs[e]]
+						s += wxs[e] * d[rowAt[r]+xs[e]]
 					}
-					sum += wzs[a] * wys[b] * s
+					sum += rowWeight[r] * s
 				}
 			}
 			c.b[I] = sum

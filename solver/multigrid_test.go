@@ -45,7 +45,7 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 	p.Stepping.Preconditioner = preconditioner
 	r := newRun(p)
 	defer r.ws.stop()
-	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = p.Initial, p.Initial, p.Initial })
+	r.initialState()
 	iterations, err := r.step(context.Background(), 0, dt, 0, backwardEulerCoefficients)
 	if err != nil {
 		t.Fatalf("%s: %v", preconditioner, err)

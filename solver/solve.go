@@ -119,9 +119,12 @@ type run struct {
 	phaseStarts               []float64
 
 	// operands of the assembly tasks
-	dt              float64
-	coef            bdf
-	kTask, fillTask func(int)
+	dt                               float64
+	coef                             bdf
+	kTask, conductanceTask, fillTask func(int)
+	// conductancesSet tells that the face conductances hold for every
+	// step (constant conductivities) and are set.
+	conductancesSet bool
 }
 
 func newRun(p *Problem) *run {
@@ -189,6 +192,7 @@ func newRun(p *Problem) *run {
 		r.lin = newMultigridCG(r.ws, r.slabs, g.N, func(c int) bool { return g.Region[c] != 0 }, size)
 	}
 	r.kTask = r.conductivities
+	r.conductanceTask = r.faceConductances
 	r.fillTask = r.fill
 	r.stepping = r.defaults()
 	return r
@@ -297,9 +301,21 @@ func (r *run) forParts(fn func(c int, m *material)) {
 	}
 }
 
+// initialState sets the solution and the two before it to the initial temperature.
+func (r *run) initialState() {
+	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = r.p.Initial, r.p.Initial, r.p.Initial })
+}
+
+// memory returns the bytes of the run's arrays, the linear solver's included.
+func (r *run) memory() int {
+	return 8*(len(r.t)+len(r.tn)+len(r.tnm1)+len(r.tstar)+len(r.b)+len(r.k)+
+		len(r.st.diag)+len(r.st.gx)+len(r.st.gy)+len(r.st.gz)+len(r.faceFlow)+len(r.faceConductance)) +
+		r.lin.memory()
+}
+
 func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error) {
 	p, s := r.p, r.stepping
-	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = p.Initial, p.Initial, p.Initial })
+	r.initialState()
 	n := r.g.CellCount()
 	state := &State{T: r.t[r.pad : r.pad+n]}
 	out := &Outcome{}
@@ -430,8 +446,10 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 	r.dt, r.coef = h, coef
 	for pass := 1; ; pass++ {
 		copy(r.tstar, r.t)
-		if !r.constantK || pass == 1 {
+		if !r.constantK || !r.conductancesSet {
 			r.ws.run(r.kTask)
+			r.ws.run(r.conductanceTask)
+			r.conductancesSet = r.constantK
 		}
 		r.ws.run(r.fillTask)
 		r.addFaces()
@@ -471,50 +489,43 @@ func (r *run) conductivities(w int) {
 	}
 }
 
-// fill sets the operator and right-hand side of the Newton pass for slab w:
-// a0·ρV·(H* + cp*·(T − T*))/Δt + Σ G·(T − T_nb) = ρV·(a1·H(n) − a2·H(n−1))/Δt,
-// enthalpy H linearised at T*, face conductances G at the conductivity of T*.
-func (r *run) fill(w int) {
+// faceConductances sets the conductances between neighbouring part cells
+// of slab w, from the cell conductivities at the linearisation point: the
+// series of two half cells, k·Δx²/(Δx/2) each.
+func (r *run) faceConductances(w int) {
 	g, k := r.g, r.k
 	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
 	dx := g.CellSize
-	harmonic := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
-	pair := func(c, nb int) float64 { return harmonic(k[c], k[nb]) }
-	if r.contactR != nil {
-		// A contact resistance between two regions adds in series.
-		pair = func(c, nb int) float64 {
-			gh := harmonic(k[c], k[nb])
-			if res := r.contactR[g.Region[c-r.pad]][g.Region[nb-r.pad]]; res > 0 && gh > 0 {
-				return 1 / (1/gh + res)
+	pair := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	for _, sp := range r.slabs[w] {
+		for c := sp.lo; c < sp.hi; c++ {
+			kc := k[c]
+			var gxp, gyp, gzp float64
+			if c+1 < sp.rowStart+nx {
+				gxp = pair(kc, k[c+1])
 			}
-			return gh
+			if sp.y < ny-1 {
+				gyp = pair(kc, k[c+nx])
+			}
+			if sp.z < nz-1 {
+				gzp = pair(kc, k[c+nxy])
+			}
+			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
 		}
 	}
+}
+
+// fill sets the diagonal and right-hand side of the Newton pass for slab w:
+// a0·ρV·(H* + cp*·(T − T*))/Δt + Σ G·(T − T_nb) = ρV·(a1·H(n) − a2·H(n−1))/Δt,
+// enthalpy H linearised at T*, face conductances G (faceConductances) at
+// the conductivity of T*.
+func (r *run) fill(w int) {
+	g, st := r.g, &r.st
+	nx, nxy := st.nx, st.nxy
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
 	for _, sp := range r.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
 			m := &r.mats[g.Region[c-r.pad]-1]
-			var gxp, gxm, gyp, gym, gzp, gzm float64
-			if c+1 < sp.rowStart+nx {
-				gxp = pair(c, c+1)
-			}
-			if c > sp.rowStart {
-				gxm = pair(c, c-1)
-			}
-			if sp.y < ny-1 {
-				gyp = pair(c, c+nx)
-			}
-			if sp.y > 0 {
-				gym = pair(c, c-nx)
-			}
-			if sp.z < nz-1 {
-				gzp = pair(c, c+nxy)
-			}
-			if sp.z > 0 {
-				gzm = pair(c, c-nxy)
-			}
-			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
-
 			ts := r.tstar[c]
 			capacity := m.rhoV / r.dt
 			cp := m.cp.At(ts)
@@ -522,7 +533,9 @@ func (r *run) fill(w int) {
 			if a2 != 0 {
 				old -= a2 * m.h.At(r.tnm1[c])
 			}
-			r.st.diag[c] = a0*capacity*cp + gxp + gxm + gyp + gym + gzp + gzm
+			// A conductance to a cell outside the part (or beyond the
+			// box, in the padding) is 0.
+			st.diag[c] = a0*capacity*cp + st.gx[c] + st.gx[c-1] + st.gy[c] + st.gy[c-nx] + st.gz[c] + st.gz[c-nxy]
 			r.b[c] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
 		}
 	}

@@ -260,6 +260,7 @@ func TestCancel(t *testing.T) {
 	defer r.ws.stop()
 	r.forParts(func(c int, _ *material) { r.tstar[c], r.tn[c], r.k[c] = 1000, 1000, 40 })
 	r.dt, r.coef = 1, backwardEulerCoefficients
+	r.ws.run(r.conductanceTask)
 	r.ws.run(r.fillTask)
 	iterations, err := r.lin.solve(ctx, &r.st, r.b, r.t, 1e-300) // unreachable tolerance
 	if !errors.Is(err, context.Canceled) || iterations > ctxCheckEvery {

@@ -84,6 +84,7 @@ func newRoot(s streams) *cobra.Command {
 		newEstimateCmd(s),
 		newSubmitCmd(s), newWatchCmd(s), newJobsCmd(s), newCancelCmd(s), newFetchCmd(s), newDemoCmd(s),
 		newServeCmd(s), newSchedulerCmd(s), newWorkerCmd(s), newBrokerCmd(s), newTokenCmd(s),
+		newBenchCmd(s),
 	)
 	return root
 }

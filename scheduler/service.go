@@ -65,7 +65,7 @@ func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (
 		if !claimed {
 			job, _, err := s.store.Job(ctx, owner)
 			if err == nil {
-				return &soakv1.SubmitJobResponse{Job: job, Existing: true}, nil
+				return s.existing(ctx, job)
 			}
 			if !errors.Is(err, store.ErrJobNotFound) {
 				return nil, storeError(err)
@@ -89,7 +89,7 @@ func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (
 			if err != nil {
 				return nil, storeError(err)
 			}
-			return &soakv1.SubmitJobResponse{Job: existing, Existing: true}, nil
+			return s.existing(ctx, existing)
 		}
 		return nil, storeError(err)
 	}
@@ -108,6 +108,21 @@ func (s *service) SubmitJob(ctx context.Context, req *soakv1.SubmitJobRequest) (
 	s.metrics.submitted.Inc()
 	s.log.Info("job queued", "job", id, "name", req.GetSpec().GetName(), "owner", client.Name)
 	return &soakv1.SubmitJobResponse{Job: job}, nil
+}
+
+// existing answers a repeated submit with the job the first one made. A
+// job that never started is queued again: the first submit's scheduler may
+// have died between writing the record and queueing it, and the repeat is
+// the client's way of finishing that submit. A message still in the queue's
+// duplicate window is dropped by the server; a later second message is
+// dropped by the worker that finds the job taken or ended.
+func (s *service) existing(ctx context.Context, job *soakv1.Job) (*soakv1.SubmitJobResponse, error) {
+	if job.GetState() == soakv1.JobState_JOB_STATE_QUEUED && len(job.GetAttempts()) == 0 {
+		if err := s.store.Enqueue(ctx, job.GetId()); err != nil {
+			return nil, storeError(err)
+		}
+	}
+	return &soakv1.SubmitJobResponse{Job: job, Existing: true}, nil
 }
 
 // undoSubmit removes the record and key of a job that could not be queued,

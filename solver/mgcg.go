@@ -134,7 +134,7 @@ func (s *multigridCG) fromStencil(w int) {
 	for _, sp := range s.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
 			g := a.gx[c] + a.gx[c-1] + a.gy[c] + a.gy[c-nx] + a.gz[c] + a.gz[c-nxy]
-			l.diag[c], l.gx[c], l.gy[c], l.gz[c] = float32(a.diag[c]), float32(a.gx[c]), float32(a.gy[c]), float32(a.gz[c])
+			l.inv[c], l.gx[c], l.gy[c], l.gz[c] = float32(1/a.diag[c]), float32(a.gx[c]), float32(a.gy[c]), float32(a.gz[c])
 			l.d[c] = float32(a.diag[c] - g)
 			hi = max(hi, 1+g/a.diag[c])
 		}

@@ -50,7 +50,8 @@ type mgLevel struct {
 	cells   int
 	next    *mgLevel // coarser level; nil on the coarsest
 
-	diag, gx, gy, gz []float32
+	// inv is 1/diagonal: the smoother then needs no division.
+	inv, gx, gy, gz []float32
 	// b is the right-hand side, x the solution and xNext the other half of
 	// its ping-pong pair. d is the Chebyshev direction, then the scaled
 	// residual handed to the coarser level; during set-up it holds the
@@ -77,7 +78,7 @@ func newLevel(n [3]int, part []bool, threads int) *mgLevel {
 	l := &mgLevel{
 		n: n, nx: n[0], nxy: nxy,
 		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
-		diag:  make([]float32, size), gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size),
+		inv:   make([]float32, size), gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size),
 		b: make([]float32, size), x: make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
 	}
 	l.lmax = make([]partial, len(l.slabs))
@@ -194,7 +195,7 @@ func (mg *multigrid) run(l *mgLevel, task func(int)) {
 func (mg *multigrid) memory() int {
 	bytes := 8 * (len(mg.chol) + len(mg.work) + len(mg.coarseCells))
 	for _, l := range mg.levels {
-		arrays := 8 // diag, gx, gy, gz, b, x, xNext, d
+		arrays := 8 // inv, gx, gy, gz, b, x, xNext, d
 		if l.scale != nil {
 			arrays++
 		}
@@ -207,13 +208,13 @@ func (mg *multigrid) memory() int {
 // model behind the bandwidth figures of `soak bench`.
 const (
 	bytesSmooth     = 4*4 + 4 + 4 + 2*4 + 4 // stencil, x, b, d read and written, x'
-	bytesSmoothZero = 4 + 4 + 4 + 4         // b, diag, d, x'
+	bytesSmoothZero = 4 + 4 + 4 + 4         // b, inv, d, x'
 	bytesResidual   = 4*4 + 4 + 4 + 4 + 4   // stencil, x, b, scale, r
 	bytesRestrict   = 4                     // fine r read once (neighbours hit the cache)
 	bytesProlong    = 4 + 2*4               // scale, x read and written
 	bytesFromFine   = 4*8 + 5*4             // float64 stencil in, float32 stencil and own terms out
 	bytesCoarsen    = 4 * 4                 // fine own terms and conductances, read once
-	bytesDiagonal   = 5 * 4                 // own terms and conductances in, diagonal out
+	bytesDiagonal   = 5 * 4                 // own terms and conductances in, inverse diagonal out
 )
 
 // setup builds every level's operator from the fine stencil a.
@@ -289,8 +290,8 @@ func (mg *multigrid) smooth(l *mgLevel, fromZero bool) {
 // values, the cells' diagonal and conductances and the lower neighbours'
 // conductances. Equal lengths let the compiler drop the bounds checks.
 type rows struct {
-	x, xw, xe, xs, xn, xd, xu       []float32
-	diag, gx, gxw, gy, gys, gz, gzd []float32
+	x, xw, xe, xs, xn, xd, xu      []float32
+	inv, gx, gxw, gy, gys, gz, gzd []float32
 }
 
 func win(v []float32, at, n int) []float32 { return v[at : at+n : at+n] }
@@ -301,7 +302,7 @@ func (l *mgLevel) rows(sp span) rows {
 	return rows{
 		x: win(x, lo, n), xw: win(x, lo-1, n), xe: win(x, lo+1, n), xs: win(x, lo-nx, n), xn: win(x, lo+nx, n),
 		xd: win(x, lo-nxy, n), xu: win(x, lo+nxy, n),
-		diag: win(l.diag, lo, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
+		inv: win(l.inv, lo, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
 		gys: win(l.gy, lo-nx, n), gz: win(l.gz, lo, n), gzd: win(l.gz, lo-nxy, n),
 	}
 }
@@ -315,9 +316,9 @@ func (l *mgLevel) smooth(w int) {
 		b := win(l.b, sp.lo, n)
 		d, next := win(l.d, sp.lo, n)[:len(b)], win(l.xNext, sp.lo, n)[:len(b)]
 		if l.fromZero {
-			diag := win(l.diag, sp.lo, n)[:len(b)]
+			inv := win(l.inv, sp.lo, n)[:len(b)]
 			for i := range b {
-				v := cr * b[i] / diag[i]
+				v := cr * b[i] * inv[i]
 				d[i], next[i] = v, v
 			}
 			continue
@@ -325,11 +326,11 @@ func (l *mgLevel) smooth(w int) {
 		a := l.rows(sp)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
-		diag, gx, gxw, gy, gys, gz, gzd := a.diag[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
+		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
 		for i := range b {
-			r := b[i] - diag[i]*x[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
-				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
-			v := cr*r/diag[i] + cd*d[i]
+			// D⁻¹(b − A·x) = D⁻¹(b + Σ g·x_nb) − x
+			in := b[i] + gx[i]*xe[i] + gxw[i]*xw[i] + gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
+			v := cr*(in*inv[i]-x[i]) + cd*d[i]
 			d[i], next[i] = v, x[i]+v
 		}
 	}
@@ -345,9 +346,9 @@ func (l *mgLevel) residual(w int) {
 		a := l.rows(sp)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
-		diag, gx, gxw, gy, gys, gz, gzd := a.diag[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
+		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
 		for i := range b {
-			r := b[i] - diag[i]*x[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
+			r := b[i] - x[i]/inv[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
 				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
 			d[i] = scale[i] * r
 		}
@@ -493,7 +494,7 @@ func (l *mgLevel) coarsen(w int) {
 	}
 }
 
-// diagonal sets diag = own terms + face conductances on slab w and finds
+// diagonal sets inv = 1/(own terms + face conductances) on slab w and finds
 // the slab's Gershgorin bound of D⁻¹A, 1 + Σg/diag.
 func (l *mgLevel) diagonal(w int) {
 	nx, nxy := l.nx, l.nxy
@@ -503,7 +504,7 @@ func (l *mgLevel) diagonal(w int) {
 			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c-nx]) +
 				float64(l.gz[c]) + float64(l.gz[c-nxy])
 			diag := float64(l.d[c]) + g
-			l.diag[c] = float32(diag)
+			l.inv[c] = float32(1 / diag)
 			hi = max(hi, 1+g/diag)
 		}
 	}
@@ -526,7 +527,7 @@ func (mg *multigrid) factorCoarsest() {
 		return -1
 	}
 	for i, c := range cells {
-		a[i*m+i] = float64(l.diag[c])
+		a[i*m+i] = 1 / float64(l.inv[c])
 		for _, nb := range [3]struct {
 			off int
 			g   []float32

@@ -18,7 +18,7 @@ func TestMeasureMatchesSolve(t *testing.T) {
 			dt := fourier * cell * cell * rhoCp / k
 			p := problemFor(testGrid(tp), constantMaterial(k, 1, rhoCp), convection(100, 293), 1073, 20*dt)
 			p.Stepping = Stepping{FirstStep: dt, MaxChange: 1e6, Preconditioner: pre}
-			m, err := MeasureStep(context.Background(), p, dt)
+			m, err := MeasureStep(context.Background(), p, dt, 2)
 			if err != nil {
 				t.Fatal(err)
 			}

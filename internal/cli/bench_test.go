@@ -43,6 +43,7 @@ func TestBenchRefusesBadFlags(t *testing.T) {
 		{[]string{"bench", "--only", "2"}, "--only"},
 		{[]string{"bench", "--part", "-1"}, "--part"},
 		{[]string{"bench", "--triad-size", "0"}, "--triad-size"},
+		{[]string{"bench", "--repeat", "0"}, "--repeat"},
 	} {
 		code, _, stderr := runSoak(t, tc.args...)
 		if code != ExitUsage || !strings.Contains(stderr, tc.want) {

@@ -142,3 +142,32 @@ func TestMultigridIterationsFlat(t *testing.T) {
 		}
 	}
 }
+
+// TestSolveAllocatesNothing: a linear solve, set-up included, must not
+// allocate: the work is passes over arrays made once per run.
+func TestSolveAllocatesNothing(t *testing.T) {
+	const k, rhoCp = 40.0, 3.6e6
+	for _, pre := range []string{Multigrid, Jacobi} {
+		tp := block3(32) // enough cells for two workers
+		tp.cell = 1e-3
+		p := problemFor(testGrid(tp), constantMaterial(k, 1, rhoCp), convection(100, 293), 1073, 3600)
+		p.Stepping.Preconditioner = pre
+		p.Threads = 2
+		r := newRun(p)
+		r.initialState()
+		dt := 20 * tp.cell * tp.cell * rhoCp / k
+		if _, err := r.step(context.Background(), 0, dt, 0, backwardEulerCoefficients); err != nil {
+			t.Fatal(err)
+		}
+		allocs := testing.AllocsPerRun(3, func() {
+			r.initialState()
+			if _, err := r.lin.solve(context.Background(), &r.st, r.b, r.t, 1e-8); err != nil {
+				t.Fatal(err)
+			}
+		})
+		r.ws.stop()
+		if allocs != 0 {
+			t.Errorf("%s: %g allocations per solve", pre, allocs)
+		}
+	}
+}

@@ -496,19 +496,29 @@ func (r *run) faceConductances(w int) {
 	g, k := r.g, r.k
 	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
 	dx := g.CellSize
-	pair := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	harmonic := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
+	pair := func(c, nb int) float64 { return harmonic(k[c], k[nb]) }
+	if r.contactR != nil {
+		// A contact resistance between two regions adds in series.
+		pair = func(c, nb int) float64 {
+			gh := harmonic(k[c], k[nb])
+			if res := r.contactR[g.Region[c-r.pad]][g.Region[nb-r.pad]]; res > 0 && gh > 0 {
+				return 1 / (1/gh + res)
+			}
+			return gh
+		}
+	}
 	for _, sp := range r.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
-			kc := k[c]
 			var gxp, gyp, gzp float64
 			if c+1 < sp.rowStart+nx {
-				gxp = pair(kc, k[c+1])
+				gxp = pair(c, c+1)
 			}
 			if sp.y < ny-1 {
-				gyp = pair(kc, k[c+nx])
+				gyp = pair(c, c+nx)
 			}
 			if sp.z < nz-1 {
-				gzp = pair(kc, k[c+nxy])
+				gzp = pair(c, c+nxy)
 			}
 			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
 		}

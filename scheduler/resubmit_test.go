@@ -47,3 +47,27 @@ func TestResubmitQueuesAJobItsFirstSubmitNeverQueued(t *testing.T) {
 		t.Errorf("job after the resubmit: %s with %d attempts (events %v), want finished once", job.GetState(), len(job.GetAttempts()), kinds(events))
 	}
 }
+
+// A job whose record was written but never queued, and that no client will
+// submit again (it had no key), is queued when a scheduler starts.
+func TestStartQueuesAStrandedJob(t *testing.T) {
+	t.Parallel()
+	ns := startNATS(t)
+	nc := connect(t, ns)
+	st, err := store.Setup(t.Context(), nc, testSettings())
+	if err != nil {
+		t.Fatal(err)
+	}
+	id := store.NewJobID(time.Now())
+	if err := st.CreateJob(t.Context(), &soakv1.Job{Id: id, Spec: sphereSpec("stranded"), State: soakv1.JobState_JOB_STATE_QUEUED}); err != nil {
+		t.Fatal(err)
+	}
+	_, client := startScheduler(t, nc, testSettings())
+	startWorker(t, nc, worker.Config{Name: "w1", Runner: quickRunner})
+	if _, err := watchAll(t.Context(), client, id, 0); err != nil {
+		t.Fatal(err)
+	}
+	if job := getJob(t, client, id); job.GetState() != soakv1.JobState_JOB_STATE_FINISHED || len(job.GetAttempts()) != 1 {
+		t.Errorf("stranded job: %s with %d attempts, want finished once", job.GetState(), len(job.GetAttempts()))
+	}
+}

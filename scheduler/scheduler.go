@@ -122,6 +122,11 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 	s.setHealth(nc.IsConnected())
 	s.bg.Go(func() { s.followNATS(life, nc, statuses) })
 	s.bg.Go(func() { svc.handleDeadLetters(life) })
+	s.bg.Go(func() {
+		if _, err := svc.requeueStranded(life); err != nil && life.Err() == nil {
+			cfg.Logger.Error("looking for stranded jobs", "err", err)
+		}
+	})
 	go func() { s.served <- gs.Serve(lis) }()
 	cfg.Logger.Info("scheduler serving", "addr", lis.Addr().String(), "max_message_bytes", cfg.MaxMessageBytes)
 	return s, nil

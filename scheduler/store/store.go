@@ -401,3 +401,27 @@ func (s *Store) SubscribeCancels(notify func(id string)) (*nats.Subscription, er
 	}
 	return sub, nil
 }
+
+// QueuedJobIDs returns the ids of the jobs that have a message in the work
+// queue now.
+func (s *Store) QueuedJobIDs(ctx context.Context) (map[string]bool, error) {
+	info, err := s.queue.Info(ctx)
+	if err != nil {
+		return nil, fmt.Errorf("queue state: %w", err)
+	}
+	ids := make(map[string]bool, info.State.Msgs)
+	if info.State.Msgs == 0 {
+		return ids, nil
+	}
+	for seq := info.State.FirstSeq; seq <= info.State.LastSeq; seq++ {
+		id, err := s.QueueMessageJob(ctx, seq)
+		if errors.Is(err, ErrJobNotFound) {
+			continue // acknowledged or deleted: a gap in the sequence
+		}
+		if err != nil {
+			return nil, err
+		}
+		ids[id] = true
+	}
+	return ids, nil
+}

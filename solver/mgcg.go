@@ -30,13 +30,13 @@ type multigridCG struct {
 	fromStencilTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
 }
 
-func newMultigridCG(ws *workers, slabs [][]span, g [3]int, part func(c int) bool, size int) *multigridCG {
-	mask := make([]bool, g[0]*g[1]*g[2])
+func newMultigridCG(ws *workers, slabs [][]span, dims [3]int, part func(c int) bool, size int) *multigridCG {
+	mask := make([]bool, dims[0]*dims[1]*dims[2])
 	for c := range mask {
 		mask[c] = part(c)
 	}
 	s := &multigridCG{
-		ws: ws, slabs: slabs, mg: newMultigrid(ws, g, mask),
+		ws: ws, slabs: slabs, mg: newMultigrid(ws, dims, mask),
 		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
 		sums: make([]partial, ws.count()),
 	}

@@ -29,7 +29,8 @@ import (
 // conjugate gradient iteration around it stays in float64.
 
 const (
-	// maxCoarseCells is the size of the coarsest level, solved by Cholesky.
+	// maxCoarseCells is the most cells the coarsest level, solved by
+	// Cholesky, may have.
 	maxCoarseCells = 16
 	// smoothDegree is the degree of the Chebyshev smoother before and
 	// after the coarse correction.

@@ -20,9 +20,25 @@ type span struct {
 // where either cell lies outside the part. Whole-box arrays keep the
 // neighbour arithmetic trivial; compacting to part cells would save memory
 // on sparse parts.
+//
+// The face conductances are float32, rounded once when they are set: the
+// operator with the rounded values is exactly symmetric, and its diagonal
+// sums them in float64, so the rounding changes the conductivities by a
+// part in 10⁷ and nothing else. The multigrid's finest level shares these
+// arrays instead of copying them, and every product reads 12 bytes per
+// cell less.
 type stencil struct {
-	nx, nxy          int
-	diag, gx, gy, gz []float64
+	nx, nxy    int
+	diag       []float64
+	gx, gy, gz []float32
+}
+
+// times returns (A·x)_c.
+func (a *stencil) times(x []float64, c int) float64 {
+	nx, nxy := a.nx, a.nxy
+	return a.diag[c]*x[c] - float64(a.gx[c])*x[c+1] - float64(a.gx[c-1])*x[c-1] -
+		float64(a.gy[c])*x[c+nx] - float64(a.gy[c-nx])*x[c-nx] -
+		float64(a.gz[c])*x[c+nxy] - float64(a.gz[c-nxy])*x[c-nxy]
 }
 
 // linearSolver solves the symmetric positive definite system of one Newton
@@ -148,7 +164,7 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 
 	cells := float64(s.cells)
 	rz, bb, rr := s.reduce(s.startTask)
-	s.bytes += (bytesStencil64 + 5*8) * cells
+	s.bytes += (bytesStencil + 5*8) * cells
 	limit := tol * tol * bb
 	if rr <= limit {
 		return 0, nil
@@ -158,7 +174,7 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 	maxIter := 1000 + 100*int(math.Cbrt(cells))
 	for it := 1; it <= maxIter; it++ {
 		// product 48, update 56, direction 32 bytes per cell
-		s.bytes += (bytesStencil64 + 2*8 + 7*8 + 4*8) * cells
+		s.bytes += (bytesStencil + 2*8 + 7*8 + 4*8) * cells
 		if it%ctxCheckEvery == 0 {
 			if err := ctx.Err(); err != nil {
 				return it, err
@@ -184,20 +200,16 @@ func (s *jacobiCG) moved() float64 { return s.bytes }
 
 func (s *jacobiCG) memory() int { return 8 * (len(s.r) + len(s.p) + len(s.q) + len(s.invDiag)) }
 
-// bytesStencil64 is the float64 stencil's diag, gx, gy, gz per cell.
-const bytesStencil64 = 4 * 8
+// bytesStencil is the stencil's float64 diag and float32 gx, gy, gz per cell.
+const bytesStencil = 8 + 3*4
 
 // start sets r = b − A·x and p = r/diag; sums r·r/diag, b·b and r·r.
 func (s *jacobiCG) start(w int) {
 	a, x, b, r, p := s.a, s.x, s.b, s.r, s.p
-	nx, nxy := a.nx, a.nxy
 	var rz, bb, rr float64
 	for _, sp := range s.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
-			ax := a.diag[c]*x[c] - a.gx[c]*x[c+1] - a.gx[c-1]*x[c-1] -
-				a.gy[c]*x[c+nx] - a.gy[c-nx]*x[c-nx] -
-				a.gz[c]*x[c+nxy] - a.gz[c-nxy]*x[c-nxy]
-			rc := b[c] - ax
+			rc := b[c] - a.times(x, c)
 			r[c] = rc
 			s.invDiag[c] = 1 / a.diag[c]
 			z := rc * s.invDiag[c]
@@ -218,12 +230,21 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 	nx, nxy := a.nx, a.nxy
 	var pq float64
 	for _, sp := range spans {
-		for c := sp.lo; c < sp.hi; c++ {
-			ap := a.diag[c]*p[c] - a.gx[c]*p[c+1] - a.gx[c-1]*p[c-1] -
-				a.gy[c]*p[c+nx] - a.gy[c-nx]*p[c-nx] -
-				a.gz[c]*p[c+nxy] - a.gz[c-nxy]*p[c-nxy]
-			q[c] = ap
-			pq += p[c] * ap
+		lo, n := sp.lo, sp.hi-sp.lo
+		// Equal-length windows let the compiler drop the bounds checks.
+		pc, pw, pe, ps, pn, pd, pu := p[lo:lo+n], p[lo-1:lo-1+n], p[lo+1:lo+1+n], p[lo-nx:lo-nx+n], p[lo+nx:lo+nx+n],
+			p[lo-nxy:lo-nxy+n], p[lo+nxy:lo+nxy+n]
+		diag, gx, gxw, gy, gys, gz, gzd := a.diag[lo:lo+n], a.gx[lo:lo+n], a.gx[lo-1:lo-1+n], a.gy[lo:lo+n], a.gy[lo-nx:lo-nx+n],
+			a.gz[lo:lo+n], a.gz[lo-nxy:lo-nxy+n]
+		qc := q[lo : lo+n]
+		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]
+		diag, gx, gxw, gy, gys, gz, gzd, qc = diag[:len(pc)], gx[:len(pc)], gxw[:len(pc)], gy[:len(pc)], gys[:len(pc)], gz[:len(pc)], gzd[:len(pc)], qc[:len(pc)]
+		for i := range pc {
+			ap := diag[i]*pc[i] - float64(gx[i])*pe[i] - float64(gxw[i])*pw[i] -
+				float64(gy[i])*pn[i] - float64(gys[i])*ps[i] -
+				float64(gz[i])*pu[i] - float64(gzd[i])*pd[i]
+			qc[i] = ap
+			pq += pc[i] * ap
 		}
 	}
 	return pq

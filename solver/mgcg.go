@@ -30,13 +30,13 @@ type multigridCG struct {
 	fromStencilTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
 }
 
-func newMultigridCG(ws *workers, slabs [][]span, dims [3]int, part func(c int) bool, size int) *multigridCG {
+func newMultigridCG(ws *workers, slabs [][]span, a *stencil, dims [3]int, part func(c int) bool, size int) *multigridCG {
 	mask := make([]bool, dims[0]*dims[1]*dims[2])
 	for c := range mask {
 		mask[c] = part(c)
 	}
 	s := &multigridCG{
-		ws: ws, slabs: slabs, mg: newMultigrid(ws, dims, mask),
+		ws: ws, slabs: slabs, mg: newMultigrid(ws, a, dims, mask),
 		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
 		sums: make([]partial, ws.count()),
 	}
@@ -72,11 +72,11 @@ func (s *multigridCG) reduce(task func(int)) (a, b float64) {
 
 // Bytes per part cell of the CG passes (float64 = 8, float32 = 4).
 const (
-	bytesStart     = bytesStencil64 + 3*8 + 4 // x, b, r; the preconditioner's b
-	bytesProduct   = bytesStencil64 + 2*8     // p, q
-	bytesUpdate    = 6*8 + 4                  // x, r read and written, p, q; the preconditioner's b
-	bytesDot       = 2*8 + 4                  // r, q, z
-	bytesDirection = 4 + 2*8                  // z, p read and written
+	bytesStart     = bytesStencil + 3*8 + 4 // x, b, r; the preconditioner's b
+	bytesProduct   = bytesStencil + 2*8     // p, q
+	bytesUpdate    = 6*8 + 4                // x, r read and written, p, q; the preconditioner's b
+	bytesDot       = 2*8 + 4                // r, q, z
+	bytesDirection = 4 + 2*8                // z, p read and written
 )
 
 func (s *multigridCG) solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error) {
@@ -123,18 +123,19 @@ func (s *multigridCG) solve(ctx context.Context, a *stencil, b, x []float64, tol
 	return maxMultigridIterations, ErrLinearSolve
 }
 
-// fromStencil copies the fine stencil of slab w into the finest level in
-// float32, with each cell's own terms (the diagonal less its face
-// conductances, taken in float64 before rounding: at large steps they are
-// a small difference of large numbers).
+// fromStencil sets the finest level's inverse diagonal and each cell's own
+// terms (the diagonal less its face conductances, taken in float64 before
+// rounding: at large steps they are a small difference of large numbers)
+// on slab w; the level shares the stencil's conductances.
 func (s *multigridCG) fromStencil(w int) {
 	a, l := s.a, s.mg.levels[0]
 	nx, nxy := a.nx, a.nxy
 	hi := 0.0
 	for _, sp := range s.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
-			g := a.gx[c] + a.gx[c-1] + a.gy[c] + a.gy[c-nx] + a.gz[c] + a.gz[c-nxy]
-			l.inv[c], l.gx[c], l.gy[c], l.gz[c] = float32(1/a.diag[c]), float32(a.gx[c]), float32(a.gy[c]), float32(a.gz[c])
+			g := float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c-nx]) +
+				float64(a.gz[c]) + float64(a.gz[c-nxy])
+			l.inv[c] = float32(1 / a.diag[c])
 			l.d[c] = float32(a.diag[c] - g)
 			hi = max(hi, 1+g/a.diag[c])
 		}
@@ -145,14 +146,10 @@ func (s *multigridCG) fromStencil(w int) {
 // start sets r = b − A·x and hands r to the preconditioner; sums b·b and r·r.
 func (s *multigridCG) start(w int) {
 	a, x, b, r, pb := s.a, s.x, s.b, s.r, s.mg.levels[0].b
-	nx, nxy := a.nx, a.nxy
 	var bb, rr float64
 	for _, sp := range s.slabs[w] {
 		for c := sp.lo; c < sp.hi; c++ {
-			ax := a.diag[c]*x[c] - a.gx[c]*x[c+1] - a.gx[c-1]*x[c-1] -
-				a.gy[c]*x[c+nx] - a.gy[c-nx]*x[c-nx] -
-				a.gz[c]*x[c+nxy] - a.gz[c-nxy]*x[c-nxy]
-			rc := b[c] - ax
+			rc := b[c] - a.times(x, c)
 			r[c], pb[c] = rc, float32(rc)
 			bb += b[c] * b[c]
 			rr += rc * rc

@@ -51,8 +51,10 @@ type mgLevel struct {
 	cells   int
 	next    *mgLevel // coarser level; nil on the coarsest
 
-	// inv is 1/diagonal: the smoother then needs no division.
-	inv, gx, gy, gz []float32
+	// inv is 1/diagonal: the smoother then needs no division. gx, gy, gz
+	// are the finest level's stencil's own arrays (ownsConductances false).
+	inv, gx, gy, gz  []float32
+	ownsConductances bool
 	// b is the right-hand side, x the solution and xNext the other half of
 	// its ping-pong pair. d is the Chebyshev direction, then the scaled
 	// residual handed to the coarser level; during set-up it holds the
@@ -73,14 +75,22 @@ type mgLevel struct {
 	smoothTask, residualTask, prolongTask, restrictTask, coarsenTask, diagonalTask func(int)
 }
 
-func newLevel(n [3]int, part []bool, threads int) *mgLevel {
+// newLevel makes a level of n cells whose part cells part tells; a level
+// built from a stencil (the finest) shares its conductances.
+func newLevel(n [3]int, part []bool, threads int, a *stencil) *mgLevel {
 	nxy := n[0] * n[1]
 	size := n[0]*n[1]*n[2] + 2*nxy
 	l := &mgLevel{
 		n: n, nx: n[0], nxy: nxy,
 		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
-		inv:   make([]float32, size), gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size),
-		b: make([]float32, size), x: make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
+		inv:   make([]float32, size),
+		b:     make([]float32, size), x: make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
+	}
+	if a != nil {
+		l.gx, l.gy, l.gz = a.gx, a.gy, a.gz
+	} else {
+		l.gx, l.gy, l.gz = make([]float32, size), make([]float32, size), make([]float32, size)
+		l.ownsConductances = true
 	}
 	l.lmax = make([]partial, len(l.slabs))
 	for _, slab := range l.slabs {
@@ -108,10 +118,10 @@ type multigrid struct {
 	moved       float64 // bytes moved so far, by the traffic model below
 }
 
-func newMultigrid(ws *workers, dims [3]int, part []bool) *multigrid {
+func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool) *multigrid {
 	mg := &multigrid{ws: ws}
 	threads := ws.count()
-	l := newLevel(dims, part, threads)
+	l := newLevel(dims, part, threads, a)
 	mg.levels = append(mg.levels, l)
 	for l.cells > maxCoarseCells && (l.n[0] > 1 || l.n[1] > 1 || l.n[2] > 1) {
 		var cn [3]int
@@ -132,7 +142,7 @@ func newMultigrid(ws *workers, dims [3]int, part []bool) *multigrid {
 				}
 			}
 		}
-		c := newLevel(cn, coarse, threads)
+		c := newLevel(cn, coarse, threads, nil)
 		l.next = c
 		l.scale = make([]float32, len(l.x))
 		mg.interpolationScale(l)
@@ -196,7 +206,10 @@ func (mg *multigrid) run(l *mgLevel, task func(int)) {
 func (mg *multigrid) memory() int {
 	bytes := 8 * (len(mg.chol) + len(mg.work) + len(mg.coarseCells))
 	for _, l := range mg.levels {
-		arrays := 8 // inv, gx, gy, gz, b, x, xNext, d
+		arrays := 5 // inv, b, x, xNext, d
+		if l.ownsConductances {
+			arrays += 3
+		}
 		if l.scale != nil {
 			arrays++
 		}
@@ -213,7 +226,7 @@ const (
 	bytesResidual   = 4*4 + 4 + 4 + 4 + 4   // stencil, x, b, scale, r
 	bytesRestrict   = 4                     // fine r read once (neighbours hit the cache)
 	bytesProlong    = 4 + 2*4               // scale, x read and written
-	bytesFromFine   = 4*8 + 5*4             // float64 stencil in, float32 stencil and own terms out
+	bytesFromFine   = bytesStencil + 2*4    // stencil in, inverse diagonal and own terms out
 	bytesCoarsen    = 4 * 4                 // fine own terms and conductances, read once
 	bytesDiagonal   = 5 * 4                 // own terms and conductances in, inverse diagonal out
 )

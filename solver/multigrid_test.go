@@ -60,7 +60,8 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 			for c := sp.lo; c < sp.hi; c++ {
 				rr += (r.b[c] - ax[c]) * (r.b[c] - ax[c])
 				bb += r.b[c] * r.b[c]
-				own := a.diag[c] - a.gx[c] - a.gx[c-1] - a.gy[c] - a.gy[c-a.nx] - a.gz[c] - a.gz[c-a.nxy]
+				own := a.diag[c] - float64(a.gx[c]) - float64(a.gx[c-1]) - float64(a.gy[c]) - float64(a.gy[c-a.nx]) -
+					float64(a.gz[c]) - float64(a.gz[c-a.nxy])
 				lambda = min(lambda, own)
 			}
 		}

@@ -134,7 +134,7 @@ func newRun(p *Problem) *run {
 	r := &run{
 		p: p, g: g, pad: nxy, stepping: p.Stepping,
 		st: stencil{nx: nx, nxy: nxy, diag: make([]float64, size),
-			gx: make([]float64, size), gy: make([]float64, size), gz: make([]float64, size)},
+			gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size)},
 		t: make([]float64, size), tn: make([]float64, size), tnm1: make([]float64, size),
 		tstar: make([]float64, size), b: make([]float64, size), k: make([]float64, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
@@ -189,7 +189,7 @@ func newRun(p *Problem) *run {
 	if p.Stepping.Preconditioner == Jacobi {
 		r.lin = newJacobiCG(r.ws, r.slabs, size)
 	} else {
-		r.lin = newMultigridCG(r.ws, r.slabs, g.N, func(c int) bool { return g.Region[c] != 0 }, size)
+		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, size)
 	}
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances
@@ -309,8 +309,8 @@ func (r *run) initialState() {
 // memory returns the bytes of the run's arrays, the linear solver's included.
 func (r *run) memory() int {
 	return 8*(len(r.t)+len(r.tn)+len(r.tnm1)+len(r.tstar)+len(r.b)+len(r.k)+
-		len(r.st.diag)+len(r.st.gx)+len(r.st.gy)+len(r.st.gz)+len(r.faceFlow)+len(r.faceConductance)) +
-		r.lin.memory()
+		len(r.st.diag)+len(r.faceFlow)+len(r.faceConductance)) +
+		4*(len(r.st.gx)+len(r.st.gy)+len(r.st.gz)) + r.lin.memory()
 }
 
 func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error) {
@@ -520,7 +520,7 @@ func (r *run) faceConductances(w int) {
 			if sp.z < nz-1 {
 				gzp = pair(c, c+nxy)
 			}
-			r.st.gx[c], r.st.gy[c], r.st.gz[c] = gxp, gyp, gzp
+			r.st.gx[c], r.st.gy[c], r.st.gz[c] = float32(gxp), float32(gyp), float32(gzp)
 		}
 	}
 }
@@ -545,7 +545,8 @@ func (r *run) fill(w int) {
 			}
 			// A conductance to a cell outside the part (or beyond the
 			// box, in the padding) is 0.
-			st.diag[c] = a0*capacity*cp + st.gx[c] + st.gx[c-1] + st.gy[c] + st.gy[c-nx] + st.gz[c] + st.gz[c-nxy]
+			st.diag[c] = a0*capacity*cp + float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
+				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
 			r.b[c] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
 		}
 	}

@@ -102,7 +102,10 @@ type run struct {
 	// t is the current iterate and, between steps, the accepted solution;
 	// tn and tnm1 are the two accepted solutions before; tstar is the
 	// linearisation point of a Newton pass.
-	t, tn, tnm1, tstar, b, k []float64
+	t, tn, tnm1, tstar, b []float64
+	// k is each cell's conductivity at the linearisation point; nil when
+	// every conductivity is constant (cellK reads the material then).
+	k []float64
 
 	// contactR[a][b] is the contact resistance of one cell face between
 	// regions a and b, K/W (0 for none); nil when the problem has no contacts.
@@ -136,7 +139,7 @@ func newRun(p *Problem) *run {
 		st: stencil{nx: nx, nxy: nxy, diag: make([]float64, size),
 			gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size)},
 		t: make([]float64, size), tn: make([]float64, size), tnm1: make([]float64, size),
-		tstar: make([]float64, size), b: make([]float64, size), k: make([]float64, size),
+		tstar: make([]float64, size), b: make([]float64, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
 	}
@@ -161,6 +164,9 @@ func newRun(p *Problem) *run {
 			res := 1 / (c.Conductance * g.CellSize * g.CellSize)
 			r.contactR[c.RegionA][c.RegionB], r.contactR[c.RegionB][c.RegionA] = res, res
 		}
+	}
+	if !r.constantK {
+		r.k = make([]float64, size)
 	}
 	drive := 1.0 // K, floor for a problem with no driving difference
 	for _, e := range p.Exposures {
@@ -447,7 +453,9 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 	for pass := 1; ; pass++ {
 		copy(r.tstar, r.t)
 		if !r.constantK || !r.conductancesSet {
-			r.ws.run(r.kTask)
+			if r.k != nil {
+				r.ws.run(r.kTask)
+			}
 			r.ws.run(r.conductanceTask)
 			r.conductancesSet = r.constantK
 		}
@@ -489,19 +497,32 @@ func (r *run) conductivities(w int) {
 	}
 }
 
+// cellK returns the conductivity of cell c (padded index, inside the box)
+// at the linearisation point, 0 outside the part.
+func (r *run) cellK(c int) float64 {
+	if r.k != nil {
+		return r.k[c]
+	}
+	region := r.g.Region[c-r.pad]
+	if region == 0 {
+		return 0
+	}
+	return r.mats[region-1].k.At(r.p.Initial) // constant: any temperature
+}
+
 // faceConductances sets the conductances between neighbouring part cells
 // of slab w, from the cell conductivities at the linearisation point: the
 // series of two half cells, k·Δx²/(Δx/2) each.
 func (r *run) faceConductances(w int) {
-	g, k := r.g, r.k
+	g := r.g
 	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
 	dx := g.CellSize
 	harmonic := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
-	pair := func(c, nb int) float64 { return harmonic(k[c], k[nb]) }
+	pair := func(c, nb int) float64 { return harmonic(r.cellK(c), r.cellK(nb)) }
 	if r.contactR != nil {
 		// A contact resistance between two regions adds in series.
 		pair = func(c, nb int) float64 {
-			gh := harmonic(k[c], k[nb])
+			gh := harmonic(r.cellK(c), r.cellK(nb))
 			if res := r.contactR[g.Region[c-r.pad]][g.Region[nb-r.pad]]; res > 0 && gh > 0 {
 				return 1 / (1/gh + res)
 			}
@@ -564,7 +585,7 @@ func (r *run) addFaces() {
 		}
 		c := r.pad + int(f.Cell)
 		ts := r.tstar[c]
-		_, q, gl := faceExchange(halfCellConductance(r.k[c], g.CellSize), f.Area, ph, ts)
+		_, q, gl := faceExchange(halfCellConductance(r.cellK(c), g.CellSize), f.Area, ph, ts)
 		r.faceFlow[i], r.faceConductance[i] = q, gl
 		r.st.diag[c] += gl
 		r.b[c] += q + gl*ts

@@ -3,15 +3,26 @@ package solver
 import (
 	"context"
 	"math"
+	"sort"
 	"sync"
 )
 
 // span is a run [lo, hi) of consecutive part cells in one grid row, in
 // padded array indices. Loops run over spans so that cells outside the part
-// cost nothing; rowStart is the padded index of the row's first cell.
+// cost nothing; rowStart is the padded index of the row's first cell. at is
+// the index of cell lo among the part cells, in span order: arrays that no
+// neighbour reads hold the part cells only, cell lo+i at at+i.
 type span struct {
 	lo, hi, rowStart int
+	at               int
 	y, z             int
+}
+
+// partIndex returns the index among the part cells of padded cell c, which
+// must lie in one of spans (sorted as partitionMask makes them).
+func partIndex(spans []span, c int) int {
+	i := sort.Search(len(spans), func(i int) bool { return spans[i].hi > c })
+	return spans[i].at + c - spans[i].lo
 }
 
 // stencil is the 7-point operator (A·x)_c = diag_c·x_c − Σ g·x_neighbour on
@@ -45,7 +56,8 @@ func (a *stencil) times(x []float64, c int) float64 {
 // pass. It is an interface so that the preconditioner can be exchanged.
 type linearSolver interface {
 	// solve improves x in place (warm start) until ‖b − A·x‖ ≤ tol·‖b‖ and
-	// returns the number of iterations.
+	// returns the number of iterations; b holds the part cells only
+	// (span.at), x is a whole-box array.
 	solve(ctx context.Context, a *stencil, b, x []float64, tol float64) (int, error)
 	// moved returns the bytes moved to and from memory so far, by a model
 	// of each pass (bytes per part cell).
@@ -109,7 +121,8 @@ type partial struct {
 // parallel over z-slabs. The preconditioner is folded into the vector
 // updates (z = r/diag is never stored) to save memory traffic. It is the
 // plain reference the multigrid solver is measured against
-// (Stepping.Preconditioner "jacobi").
+// (Stepping.Preconditioner "jacobi"). p is a whole-box array (the product
+// reads its neighbours); r, q and invDiag hold the part cells only.
 type jacobiCG struct {
 	ws      *workers
 	slabs   [][]span
@@ -129,22 +142,29 @@ type jacobiCG struct {
 }
 
 func newJacobiCG(ws *workers, slabs [][]span, size int) *jacobiCG {
+	cells := partCells(slabs)
 	s := &jacobiCG{
-		ws: ws, slabs: slabs,
-		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
-		invDiag: make([]float64, size),
+		ws: ws, slabs: slabs, cells: cells,
+		r: make([]float64, cells), p: make([]float64, size), q: make([]float64, cells),
+		invDiag: make([]float64, cells),
 		sums:    make([]partial, ws.count()),
-	}
-	for _, slab := range slabs {
-		for _, sp := range slab {
-			s.cells += sp.hi - sp.lo
-		}
 	}
 	s.startTask = s.start
 	s.productTask = s.product
 	s.updateTask = s.update
 	s.directionTask = s.direction
 	return s
+}
+
+// partCells counts the cells of slabs.
+func partCells(slabs [][]span) int {
+	n := 0
+	for _, slab := range slabs {
+		for _, sp := range slab {
+			n += sp.hi - sp.lo
+		}
+	}
+	return n
 }
 
 // reduce runs task on all slabs and returns the sums of the partials.
@@ -208,14 +228,14 @@ func (s *jacobiCG) start(w int) {
 	a, x, b, r, p := s.a, s.x, s.b, s.r, s.p
 	var rz, bb, rr float64
 	for _, sp := range s.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
-			rc := b[c] - a.times(x, c)
-			r[c] = rc
-			s.invDiag[c] = 1 / a.diag[c]
-			z := rc * s.invDiag[c]
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+			rc := b[i] - a.times(x, c)
+			r[i] = rc
+			s.invDiag[i] = 1 / a.diag[c]
+			z := rc * s.invDiag[i]
 			p[c] = z
 			rz += rc * z
-			bb += b[c] * b[c]
+			bb += b[i] * b[i]
 			rr += rc * rc
 		}
 	}
@@ -225,7 +245,8 @@ func (s *jacobiCG) start(w int) {
 // product sets q = A·p and sums p·q.
 func (s *jacobiCG) product(w int) { s.sums[w] = partial{a: s.a.product(s.slabs[w], s.p, s.q)} }
 
-// product sets q = A·p on the cells of spans and returns their sum of p·q.
+// product sets q = A·p on the cells of spans (q holding the part cells
+// only) and returns their sum of p·q.
 func (a *stencil) product(spans []span, p, q []float64) float64 {
 	nx, nxy := a.nx, a.nxy
 	var pq float64
@@ -236,7 +257,7 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 			p[lo-nxy:lo-nxy+n], p[lo+nxy:lo+nxy+n]
 		diag, gx, gxw, gy, gys, gz, gzd := a.diag[lo:lo+n], a.gx[lo:lo+n], a.gx[lo-1:lo-1+n], a.gy[lo:lo+n], a.gy[lo-nx:lo-nx+n],
 			a.gz[lo:lo+n], a.gz[lo-nxy:lo-nxy+n]
-		qc := q[lo : lo+n]
+		qc := q[sp.at : sp.at+n]
 		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]
 		diag, gx, gxw, gy, gys, gz, gzd, qc = diag[:len(pc)], gx[:len(pc)], gxw[:len(pc)], gy[:len(pc)], gys[:len(pc)], gz[:len(pc)], gzd[:len(pc)], qc[:len(pc)]
 		for i := range pc {
@@ -257,7 +278,7 @@ func (s *jacobiCG) update(w int) {
 	for _, sp := range s.slabs[w] {
 		// Equal-length reslices let the compiler drop the bounds checks.
 		n := sp.hi - sp.lo
-		x, r, p, q, inv := s.x[sp.lo:sp.hi], s.r[sp.lo:sp.hi:sp.lo+n], s.p[sp.lo:sp.hi], s.q[sp.lo:sp.hi], s.invDiag[sp.lo:sp.hi]
+		x, r, p, q, inv := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], s.invDiag[sp.at:sp.at+n]
 		for i := range r {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]
@@ -273,7 +294,8 @@ func (s *jacobiCG) update(w int) {
 func (s *jacobiCG) direction(w int) {
 	beta := s.beta
 	for _, sp := range s.slabs[w] {
-		r, p, inv := s.r[sp.lo:sp.hi], s.p[sp.lo:sp.hi], s.invDiag[sp.lo:sp.hi]
+		n := sp.hi - sp.lo
+		r, p, inv := s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.invDiag[sp.at:sp.at+n]
 		for i := range r {
 			p[i] = r[i]*inv[i] + beta*p[i]
 		}

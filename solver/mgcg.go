@@ -12,7 +12,8 @@ const maxMultigridIterations = 500
 // multigridCG is conjugate gradients preconditioned by one multigrid
 // V-cycle per iteration, parallel over z-slabs. The preconditioner works in
 // float32, so it is not exactly symmetric; β takes the Polak–Ribière form
-// (flexible CG), which tolerates that.
+// (flexible CG), which tolerates that. p is a whole-box array (the product
+// reads its neighbours); r and q hold the part cells only.
 type multigridCG struct {
 	ws      *workers
 	slabs   [][]span
@@ -35,15 +36,11 @@ func newMultigridCG(ws *workers, slabs [][]span, a *stencil, dims [3]int, part f
 	for c := range mask {
 		mask[c] = part(c)
 	}
+	cells := partCells(slabs)
 	s := &multigridCG{
-		ws: ws, slabs: slabs, mg: newMultigrid(ws, a, dims, mask),
-		r: make([]float64, size), p: make([]float64, size), q: make([]float64, size),
+		ws: ws, slabs: slabs, mg: newMultigrid(ws, a, dims, mask), cells: cells,
+		r: make([]float64, cells), p: make([]float64, size), q: make([]float64, cells),
 		sums: make([]partial, ws.count()),
-	}
-	for _, slab := range slabs {
-		for _, sp := range slab {
-			s.cells += sp.hi - sp.lo
-		}
 	}
 	s.fromStencilTask = s.fromStencil
 	s.startTask = s.start
@@ -148,10 +145,10 @@ func (s *multigridCG) start(w int) {
 	a, x, b, r, pb := s.a, s.x, s.b, s.r, s.mg.levels[0].b
 	var bb, rr float64
 	for _, sp := range s.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
-			rc := b[c] - a.times(x, c)
-			r[c], pb[c] = rc, float32(rc)
-			bb += b[c] * b[c]
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+			rc := b[i] - a.times(x, c)
+			r[i], pb[c] = rc, float32(rc)
+			bb += b[i] * b[i]
 			rr += rc * rc
 		}
 	}
@@ -165,7 +162,8 @@ func (s *multigridCG) update(w int) {
 	alpha, pb := s.alpha, s.mg.levels[0].b
 	var rr float64
 	for _, sp := range s.slabs[w] {
-		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.lo:sp.hi], s.p[sp.lo:sp.hi], s.q[sp.lo:sp.hi], pb[sp.lo:sp.hi]
+		n := sp.hi - sp.lo
+		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.lo:sp.hi]
 		for i := range r {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]
@@ -181,7 +179,8 @@ func (s *multigridCG) dot(w int) {
 	z := s.mg.levels[0].x
 	var rz, zq float64
 	for _, sp := range s.slabs[w] {
-		r, q, zs := s.r[sp.lo:sp.hi], s.q[sp.lo:sp.hi], z[sp.lo:sp.hi]
+		n := sp.hi - sp.lo
+		r, q, zs := s.r[sp.at:sp.at+n], s.q[sp.at:sp.at+n], z[sp.lo:sp.hi]
 		for i := range r {
 			zi := float64(zs[i])
 			rz += r[i] * zi

@@ -50,16 +50,16 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 	if err != nil {
 		t.Fatalf("%s: %v", preconditioner, err)
 	}
-	ax := make([]float64, len(r.t))
+	ax := make([]float64, len(r.b)) // part cells only, like b
 	lambda = math.Inf(1)
 	var rr, bb float64
 	a := &r.st
 	for _, slab := range r.slabs {
 		a.product(slab, r.t, ax)
 		for _, sp := range slab {
-			for c := sp.lo; c < sp.hi; c++ {
-				rr += (r.b[c] - ax[c]) * (r.b[c] - ax[c])
-				bb += r.b[c] * r.b[c]
+			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+				rr += (r.b[i] - ax[i]) * (r.b[i] - ax[i])
+				bb += r.b[i] * r.b[i]
 				own := a.diag[c] - float64(a.gx[c]) - float64(a.gx[c-1]) - float64(a.gy[c]) - float64(a.gy[c-a.nx]) -
 					float64(a.gz[c]) - float64(a.gz[c-a.nxy])
 				lambda = min(lambda, own)

@@ -102,7 +102,12 @@ type run struct {
 	// t is the current iterate and, between steps, the accepted solution;
 	// tn and tnm1 are the two accepted solutions before; tstar is the
 	// linearisation point of a Newton pass.
-	t, tn, tnm1, tstar, b []float64
+	t, tn, tnm1, tstar []float64
+	// b is the right-hand side of the Newton pass, over the part cells
+	// only (span.at): no neighbour reads it.
+	b []float64
+	// facePart is the index among the part cells of each face's cell.
+	facePart []int32
 	// k is each cell's conductivity at the linearisation point; nil when
 	// every conductivity is constant (cellK reads the material then).
 	k []float64
@@ -139,7 +144,7 @@ func newRun(p *Problem) *run {
 		st: stencil{nx: nx, nxy: nxy, diag: make([]float64, size),
 			gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size)},
 		t: make([]float64, size), tn: make([]float64, size), tnm1: make([]float64, size),
-		tstar: make([]float64, size), b: make([]float64, size),
+		tstar:    make([]float64, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
 	}
@@ -191,6 +196,12 @@ func newRun(p *Problem) *run {
 		threads = runtime.GOMAXPROCS(0)
 	}
 	r.slabs = partition(g, r.pad, threads)
+	r.b = make([]float64, partCells(r.slabs))
+	all := slices.Concat(r.slabs...)
+	r.facePart = make([]int32, len(g.Faces))
+	for i, f := range g.Faces {
+		r.facePart[i] = int32(partIndex(all, r.pad+int(f.Cell)))
+	}
 	r.ws = newWorkers(len(r.slabs))
 	if p.Stepping.Preconditioner == Jacobi {
 		r.lin = newJacobiCG(r.ws, r.slabs, size)
@@ -228,7 +239,7 @@ func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int) [][]span
 				for x < nx && inPart(row+x) {
 					x++
 				}
-				planes[z] = append(planes[z], span{lo: pad + row + lo, hi: pad + row + x, rowStart: pad + row, y: y, z: z})
+				planes[z] = append(planes[z], span{lo: pad + row + lo, hi: pad + row + x, rowStart: pad + row, at: total, y: y, z: z})
 				total += x - lo
 			}
 		}
@@ -316,7 +327,7 @@ func (r *run) initialState() {
 func (r *run) memory() int {
 	return 8*(len(r.t)+len(r.tn)+len(r.tnm1)+len(r.tstar)+len(r.b)+len(r.k)+
 		len(r.st.diag)+len(r.faceFlow)+len(r.faceConductance)) +
-		4*(len(r.st.gx)+len(r.st.gy)+len(r.st.gz)) + r.lin.memory()
+		4*(len(r.st.gx)+len(r.st.gy)+len(r.st.gz)+len(r.facePart)) + r.lin.memory()
 }
 
 func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error) {
@@ -555,7 +566,7 @@ func (r *run) fill(w int) {
 	nx, nxy := st.nx, st.nxy
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
 	for _, sp := range r.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			m := &r.mats[g.Region[c-r.pad]-1]
 			ts := r.tstar[c]
 			capacity := m.rhoV / r.dt
@@ -568,7 +579,7 @@ func (r *run) fill(w int) {
 			// box, in the padding) is 0.
 			st.diag[c] = a0*capacity*cp + float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
 				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
-			r.b[c] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
+			r.b[i] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
 		}
 	}
 }
@@ -588,7 +599,7 @@ func (r *run) addFaces() {
 		_, q, gl := faceExchange(halfCellConductance(r.cellK(c), g.CellSize), f.Area, ph, ts)
 		r.faceFlow[i], r.faceConductance[i] = q, gl
 		r.st.diag[c] += gl
-		r.b[c] += q + gl*ts
+		r.b[r.facePart[i]] += q + gl*ts
 	}
 }
 

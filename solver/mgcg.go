@@ -129,10 +129,10 @@ func (s *multigridCG) fromStencil(w int) {
 	nx, nxy := a.nx, a.nxy
 	hi := 0.0
 	for _, sp := range s.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			g := float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c-nx]) +
 				float64(a.gz[c]) + float64(a.gz[c-nxy])
-			l.inv[c] = float32(1 / a.diag[c])
+			l.inv[i] = float32(1 / a.diag[c])
 			l.d[c] = float32(a.diag[c] - g)
 			hi = max(hi, 1+g/a.diag[c])
 		}
@@ -147,7 +147,7 @@ func (s *multigridCG) start(w int) {
 	for _, sp := range s.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			rc := b[i] - a.times(x, c)
-			r[i], pb[c] = rc, float32(rc)
+			r[i], pb[i] = rc, float32(rc)
 			bb += b[i] * b[i]
 			rr += rc * rc
 		}
@@ -163,7 +163,7 @@ func (s *multigridCG) update(w int) {
 	var rr float64
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
-		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.lo:sp.hi]
+		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.at:sp.at+n]
 		for i := range r {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]

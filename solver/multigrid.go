@@ -63,6 +63,8 @@ type mgLevel struct {
 	// scale is 1 / (sum of the interpolation weights of the coarse cells
 	// in the part), per cell; nil on the coarsest level.
 	scale []float32
+	// inv, b and scale hold the part cells only (span.at): no neighbour
+	// reads them. The others span the padded box.
 
 	// Chebyshev coefficients for this set-up: step s updates
 	// d ← cd[s]·d + cr[s]·D⁻¹(b − A·x).
@@ -83,9 +85,10 @@ func newLevel(n [3]int, part []bool, threads int, a *stencil) *mgLevel {
 	l := &mgLevel{
 		n: n, nx: n[0], nxy: nxy,
 		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
-		inv:   make([]float32, size),
-		b:     make([]float32, size), x: make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
+		x:     make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
 	}
+	l.cells = partCells(l.slabs)
+	l.inv, l.b = make([]float32, l.cells), make([]float32, l.cells)
 	if a != nil {
 		l.gx, l.gy, l.gz = a.gx, a.gy, a.gz
 	} else {
@@ -93,11 +96,6 @@ func newLevel(n [3]int, part []bool, threads int, a *stencil) *mgLevel {
 		l.ownsConductances = true
 	}
 	l.lmax = make([]partial, len(l.slabs))
-	for _, slab := range l.slabs {
-		for _, sp := range slab {
-			l.cells += sp.hi - sp.lo
-		}
-	}
 	l.smoothTask = l.smooth
 	l.residualTask = l.residual
 	l.prolongTask = l.prolong
@@ -144,7 +142,7 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool) *multigrid 
 		}
 		c := newLevel(cn, coarse, threads, nil)
 		l.next = c
-		l.scale = make([]float32, len(l.x))
+		l.scale = make([]float32, l.cells)
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
 		l, part = c, coarse
@@ -172,18 +170,14 @@ func (mg *multigrid) interpolationScale(l *mgLevel) {
 			}
 		}
 	}
-	for _, slab := range l.slabs {
-		for _, sp := range slab {
-			for i := sp.lo; i < sp.hi; i++ {
-				l.scale[i] = 1
-			}
-		}
+	for i := range l.scale {
+		l.scale[i] = 1
 	}
 	mg.run(l, l.prolongTask)
 	for _, slab := range l.slabs {
 		for _, sp := range slab {
-			for i := sp.lo; i < sp.hi; i++ {
-				l.scale[i], l.x[i] = 1/l.x[i], 0
+			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+				l.scale[i], l.x[c] = 1/l.x[c], 0
 			}
 		}
 	}
@@ -206,14 +200,11 @@ func (mg *multigrid) run(l *mgLevel, task func(int)) {
 func (mg *multigrid) memory() int {
 	bytes := 8 * (len(mg.chol) + len(mg.work) + len(mg.coarseCells))
 	for _, l := range mg.levels {
-		arrays := 5 // inv, b, x, xNext, d
+		boxArrays := 3 // x, xNext, d
 		if l.ownsConductances {
-			arrays += 3
+			boxArrays += 3
 		}
-		if l.scale != nil {
-			arrays++
-		}
-		bytes += 4 * arrays * len(l.x)
+		bytes += 4 * (boxArrays*len(l.x) + len(l.inv) + len(l.b) + len(l.scale))
 	}
 	return bytes
 }
@@ -316,7 +307,7 @@ func (l *mgLevel) rows(sp span) rows {
 	return rows{
 		x: win(x, lo, n), xw: win(x, lo-1, n), xe: win(x, lo+1, n), xs: win(x, lo-nx, n), xn: win(x, lo+nx, n),
 		xd: win(x, lo-nxy, n), xu: win(x, lo+nxy, n),
-		inv: win(l.inv, lo, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
+		inv: win(l.inv, sp.at, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
 		gys: win(l.gy, lo-nx, n), gz: win(l.gz, lo, n), gzd: win(l.gz, lo-nxy, n),
 	}
 }
@@ -327,10 +318,10 @@ func (l *mgLevel) smooth(w int) {
 	cd, cr := l.cd[l.step], l.cr[l.step]
 	for _, sp := range l.slabs[w] {
 		n := sp.hi - sp.lo
-		b := win(l.b, sp.lo, n)
+		b := win(l.b, sp.at, n)
 		d, next := win(l.d, sp.lo, n)[:len(b)], win(l.xNext, sp.lo, n)[:len(b)]
 		if l.fromZero {
-			inv := win(l.inv, sp.lo, n)[:len(b)]
+			inv := win(l.inv, sp.at, n)[:len(b)]
 			for i := range b {
 				v := cr * b[i] * inv[i]
 				d[i], next[i] = v, v
@@ -355,8 +346,8 @@ func (l *mgLevel) smooth(w int) {
 func (l *mgLevel) residual(w int) {
 	for _, sp := range l.slabs[w] {
 		n := sp.hi - sp.lo
-		b := win(l.b, sp.lo, n)
-		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.lo, n)[:len(b)]
+		b := win(l.b, sp.at, n)
+		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
 		a := l.rows(sp)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
@@ -400,11 +391,11 @@ func (l *mgLevel) prolong(w int) {
 		r00, r01 := base+c.nx*(y0+c.n[1]*z0), base+c.nx*(y0+c.n[1]*z1)
 		r10, r11 := base+c.nx*(y1+c.n[1]*z0), base+c.nx*(y1+c.n[1]*z1)
 		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
-		for i := sp.lo; i < sp.hi; i++ {
+		for i, at := sp.lo, sp.at; i < sp.hi; i, at = i+1, at+1 {
 			x0, x1, wx0, wx1 := interpolation(i-sp.rowStart, f[0], c.n[0])
 			v := w00*(wx0*cx[r00+x0]+wx1*cx[r00+x1]) + w01*(wx0*cx[r01+x0]+wx1*cx[r01+x1]) +
 				w10*(wx0*cx[r10+x0]+wx1*cx[r10+x1]) + w11*(wx0*cx[r11+x0]+wx1*cx[r11+x1])
-			x[i] += scale[i] * v
+			x[i] += scale[at] * v
 		}
 	}
 }
@@ -467,7 +458,7 @@ func (l *mgLevel) restrict(w int) {
 					sum += rowWeight[r] * s
 				}
 			}
-			c.b[I] = sum
+			c.b[sp.at+I-sp.lo] = sum
 		}
 	}
 }
@@ -514,11 +505,11 @@ func (l *mgLevel) diagonal(w int) {
 	nx, nxy := l.nx, l.nxy
 	hi := 0.0
 	for _, sp := range l.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c-nx]) +
 				float64(l.gz[c]) + float64(l.gz[c-nxy])
 			diag := float64(l.d[c]) + g
-			l.inv[c] = float32(1 / diag)
+			l.inv[i] = float32(1 / diag)
 			hi = max(hi, 1+g/diag)
 		}
 	}
@@ -541,7 +532,7 @@ func (mg *multigrid) factorCoarsest() {
 		return -1
 	}
 	for i, c := range cells {
-		a[i*m+i] = 1 / float64(l.inv[c])
+		a[i*m+i] = 1 / float64(l.inv[i]) // coarseCells lists the cells in span order
 		for _, nb := range [3]struct {
 			off int
 			g   []float32
@@ -574,8 +565,8 @@ func (mg *multigrid) factorCoarsest() {
 func (mg *multigrid) solveCoarsest(l *mgLevel) {
 	a, y, cells := mg.chol, mg.work, mg.coarseCells
 	m := len(cells)
-	for i, c := range cells {
-		v := float64(l.b[c])
+	for i := range m {
+		v := float64(l.b[i]) // b lists the cells in coarseCells' order
 		for k := range i {
 			v -= a[i*m+k] * y[k]
 		}

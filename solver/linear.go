@@ -25,8 +25,9 @@ func partIndex(spans []span, c int) int {
 	return spans[i].at + c - spans[i].lo
 }
 
-// stencil is the 7-point operator (A·x)_c = diag_c·x_c − Σ g·x_neighbour on
-// padded arrays over the whole grid box: gx[c] couples c and c+1, gy[c]
+// stencil is the 7-point operator (A·x)_c = diag_c·x_c − Σ g·x_neighbour:
+// diag over the part cells only (span.at), the conductances on padded
+// arrays over the whole grid box: gx[c] couples c and c+1, gy[c]
 // couples c and c+nx, gz[c] couples c and c+nx·ny, and a coefficient is 0
 // where either cell lies outside the part. Whole-box arrays keep the
 // neighbour arithmetic trivial; compacting to part cells would save memory
@@ -44,10 +45,10 @@ type stencil struct {
 	gx, gy, gz []float32
 }
 
-// times returns (A·x)_c.
-func (a *stencil) times(x []float64, c int) float64 {
+// times returns (A·x)_c for the part cell c whose part index is i.
+func (a *stencil) times(x []float64, c, i int) float64 {
 	nx, nxy := a.nx, a.nxy
-	return a.diag[c]*x[c] - float64(a.gx[c])*x[c+1] - float64(a.gx[c-1])*x[c-1] -
+	return a.diag[i]*x[c] - float64(a.gx[c])*x[c+1] - float64(a.gx[c-1])*x[c-1] -
 		float64(a.gy[c])*x[c+nx] - float64(a.gy[c-nx])*x[c-nx] -
 		float64(a.gz[c])*x[c+nxy] - float64(a.gz[c-nxy])*x[c-nxy]
 }
@@ -229,9 +230,9 @@ func (s *jacobiCG) start(w int) {
 	var rz, bb, rr float64
 	for _, sp := range s.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			rc := b[i] - a.times(x, c)
+			rc := b[i] - a.times(x, c, i)
 			r[i] = rc
-			s.invDiag[i] = 1 / a.diag[c]
+			s.invDiag[i] = 1 / a.diag[i]
 			z := rc * s.invDiag[i]
 			p[c] = z
 			rz += rc * z
@@ -255,7 +256,7 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 		// Equal-length windows let the compiler drop the bounds checks.
 		pc, pw, pe, ps, pn, pd, pu := p[lo:lo+n], p[lo-1:lo-1+n], p[lo+1:lo+1+n], p[lo-nx:lo-nx+n], p[lo+nx:lo+nx+n],
 			p[lo-nxy:lo-nxy+n], p[lo+nxy:lo+nxy+n]
-		diag, gx, gxw, gy, gys, gz, gzd := a.diag[lo:lo+n], a.gx[lo:lo+n], a.gx[lo-1:lo-1+n], a.gy[lo:lo+n], a.gy[lo-nx:lo-nx+n],
+		diag, gx, gxw, gy, gys, gz, gzd := a.diag[sp.at:sp.at+n], a.gx[lo:lo+n], a.gx[lo-1:lo-1+n], a.gy[lo:lo+n], a.gy[lo-nx:lo-nx+n],
 			a.gz[lo:lo+n], a.gz[lo-nxy:lo-nxy+n]
 		qc := q[sp.at : sp.at+n]
 		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]

@@ -132,9 +132,9 @@ func (s *multigridCG) fromStencil(w int) {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			g := float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c-nx]) +
 				float64(a.gz[c]) + float64(a.gz[c-nxy])
-			l.inv[i] = float32(1 / a.diag[c])
-			l.d[c] = float32(a.diag[c] - g)
-			hi = max(hi, 1+g/a.diag[c])
+			l.inv[i] = float32(1 / a.diag[i])
+			l.d[c] = float32(a.diag[i] - g)
+			hi = max(hi, 1+g/a.diag[i])
 		}
 	}
 	l.lmax[w] = partial{a: hi}
@@ -146,7 +146,7 @@ func (s *multigridCG) start(w int) {
 	var bb, rr float64
 	for _, sp := range s.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			rc := b[i] - a.times(x, c)
+			rc := b[i] - a.times(x, c, i)
 			r[i], pb[i] = rc, float32(rc)
 			bb += b[i] * b[i]
 			rr += rc * rc

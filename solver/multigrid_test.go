@@ -60,7 +60,7 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 				rr += (r.b[i] - ax[i]) * (r.b[i] - ax[i])
 				bb += r.b[i] * r.b[i]
-				own := a.diag[c] - float64(a.gx[c]) - float64(a.gx[c-1]) - float64(a.gy[c]) - float64(a.gy[c-a.nx]) -
+				own := a.diag[i] - float64(a.gx[c]) - float64(a.gx[c-1]) - float64(a.gy[c]) - float64(a.gy[c-a.nx]) -
 					float64(a.gz[c]) - float64(a.gz[c-a.nxy])
 				lambda = min(lambda, own)
 			}

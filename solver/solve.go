@@ -99,9 +99,11 @@ type run struct {
 	st       stencil
 	mats     []material
 
-	// t is the current iterate and, between steps, the accepted solution;
-	// tn and tnm1 are the two accepted solutions before; tstar is the
-	// linearisation point of a Newton pass.
+	// t is the current iterate and, between steps, the accepted solution
+	// (whole box: the stencil reads neighbours, observers see the grid);
+	// tn and tnm1 are the two accepted solutions before and tstar is the
+	// linearisation point of a Newton pass, over the part cells only
+	// (span.at).
 	t, tn, tnm1, tstar []float64
 	// b is the right-hand side of the Newton pass, over the part cells
 	// only (span.at): no neighbour reads it.
@@ -141,10 +143,9 @@ func newRun(p *Problem) *run {
 	size := g.CellCount() + 2*nxy
 	r := &run{
 		p: p, g: g, pad: nxy, stepping: p.Stepping,
-		st: stencil{nx: nx, nxy: nxy, diag: make([]float64, size),
+		st: stencil{nx: nx, nxy: nxy,
 			gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size)},
-		t: make([]float64, size), tn: make([]float64, size), tnm1: make([]float64, size),
-		tstar:    make([]float64, size),
+		t:        make([]float64, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
 	}
@@ -196,7 +197,9 @@ func newRun(p *Problem) *run {
 		threads = runtime.GOMAXPROCS(0)
 	}
 	r.slabs = partition(g, r.pad, threads)
-	r.b = make([]float64, partCells(r.slabs))
+	cells := partCells(r.slabs)
+	r.b, r.st.diag = make([]float64, cells), make([]float64, cells)
+	r.tn, r.tnm1, r.tstar = make([]float64, cells), make([]float64, cells), make([]float64, cells)
 	all := slices.Concat(r.slabs...)
 	r.facePart = make([]int32, len(g.Faces))
 	for i, f := range g.Faces {
@@ -307,12 +310,13 @@ func (r *run) firstStep(maxChange float64) float64 {
 	return step
 }
 
-// forParts calls fn for every part cell index (padded).
-func (r *run) forParts(fn func(c int, m *material)) {
+// forParts calls fn for every part cell: its padded index c and its index
+// i among the part cells.
+func (r *run) forParts(fn func(c, i int, m *material)) {
 	for _, slab := range r.slabs {
 		for _, sp := range slab {
-			for c := sp.lo; c < sp.hi; c++ {
-				fn(c, &r.mats[r.g.Region[c-r.pad]-1])
+			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+				fn(c, i, &r.mats[r.g.Region[c-r.pad]-1])
 			}
 		}
 	}
@@ -320,7 +324,17 @@ func (r *run) forParts(fn func(c int, m *material)) {
 
 // initialState sets the solution and the two before it to the initial temperature.
 func (r *run) initialState() {
-	r.forParts(func(c int, _ *material) { r.t[c], r.tn[c], r.tnm1[c] = r.p.Initial, r.p.Initial, r.p.Initial })
+	r.forParts(func(c, i int, _ *material) { r.t[c], r.tn[i], r.tnm1[i] = r.p.Initial, r.p.Initial, r.p.Initial })
+}
+
+// partValues copies the part cells of the whole-box t into dst, which
+// holds the part cells only.
+func (r *run) partValues(dst []float64) {
+	for _, slab := range r.slabs {
+		for _, sp := range slab {
+			copy(dst[sp.at:sp.at+sp.hi-sp.lo], r.t[sp.lo:sp.hi])
+		}
+	}
 }
 
 // memory returns the bytes of the run's arrays, the linear solver's included.
@@ -413,7 +427,7 @@ func (r *run) integrate(ctx context.Context, observe Observer) (*Outcome, error)
 			}
 		}
 		r.tnm1, r.tn = r.tn, r.tnm1
-		copy(r.tn, r.t)
+		r.partValues(r.tn)
 		out.Steps, out.TotalIterations, out.EndTime = state.Step, state.TotalIterations, time
 		out.EnergyImbalance = imbalance(state.StoredEnergy, state.BoundaryHeat)
 		stop := observe != nil && observe(state)
@@ -459,10 +473,10 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 	if dtPrev > 0 {
 		ratio = h / dtPrev
 	}
-	r.forParts(func(c int, _ *material) { r.t[c] = r.tn[c] + ratio*(r.tn[c]-r.tnm1[c]) })
+	r.forParts(func(c, i int, _ *material) { r.t[c] = r.tn[i] + ratio*(r.tn[i]-r.tnm1[i]) })
 	r.dt, r.coef = h, coef
 	for pass := 1; ; pass++ {
-		copy(r.tstar, r.t)
+		r.partValues(r.tstar)
 		if !r.constantK || !r.conductancesSet {
 			if r.k != nil {
 				r.ws.run(r.kTask)
@@ -481,8 +495,8 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 			return iterations, nil
 		}
 		settled := true
-		r.forParts(func(c int, _ *material) {
-			if math.Abs(r.t[c]-r.tstar[c]) > r.newtonTol {
+		r.forParts(func(c, i int, _ *material) {
+			if math.Abs(r.t[c]-r.tstar[i]) > r.newtonTol {
 				settled = false
 			}
 		})
@@ -499,11 +513,11 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 func (r *run) conductivities(w int) {
 	for _, sp := range r.slabs[w] {
 		m := &r.mats[r.g.Region[sp.lo-r.pad]-1]
-		for c := sp.lo; c < sp.hi; c++ {
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			if c > sp.lo && r.g.Region[c-r.pad] != r.g.Region[c-1-r.pad] {
 				m = &r.mats[r.g.Region[c-r.pad]-1]
 			}
-			r.k[c] = m.k.At(r.tstar[c])
+			r.k[c] = m.k.At(r.tstar[i])
 		}
 	}
 }
@@ -568,16 +582,16 @@ func (r *run) fill(w int) {
 	for _, sp := range r.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			m := &r.mats[g.Region[c-r.pad]-1]
-			ts := r.tstar[c]
+			ts := r.tstar[i]
 			capacity := m.rhoV / r.dt
 			cp := m.cp.At(ts)
-			old := a1 * m.h.At(r.tn[c])
+			old := a1 * m.h.At(r.tn[i])
 			if a2 != 0 {
-				old -= a2 * m.h.At(r.tnm1[c])
+				old -= a2 * m.h.At(r.tnm1[i])
 			}
 			// A conductance to a cell outside the part (or beyond the
 			// box, in the padding) is 0.
-			st.diag[c] = a0*capacity*cp + float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
+			st.diag[i] = a0*capacity*cp + float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
 				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
 			r.b[i] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
 		}
@@ -594,12 +608,12 @@ func (r *run) addFaces() {
 			r.faceFlow[i], r.faceConductance[i] = 0, 0
 			continue
 		}
-		c := r.pad + int(f.Cell)
-		ts := r.tstar[c]
+		c, at := r.pad+int(f.Cell), r.facePart[i]
+		ts := r.tstar[at]
 		_, q, gl := faceExchange(halfCellConductance(r.cellK(c), g.CellSize), f.Area, ph, ts)
 		r.faceFlow[i], r.faceConductance[i] = q, gl
-		r.st.diag[c] += gl
-		r.b[r.facePart[i]] += q + gl*ts
+		r.st.diag[at] += gl
+		r.b[at] += q + gl*ts
 	}
 }
 
@@ -612,7 +626,7 @@ func (r *run) boundaryFlow() float64 {
 	sum := 0.0
 	for i := range r.g.Faces {
 		c := r.pad + int(r.g.Faces[i].Cell)
-		sum += r.faceFlow[i] + r.faceConductance[i]*(r.tstar[c]-r.t[c])
+		sum += r.faceFlow[i] + r.faceConductance[i]*(r.tstar[r.facePart[i]]-r.t[c])
 	}
 	return sum
 }
@@ -620,7 +634,7 @@ func (r *run) boundaryFlow() float64 {
 // storedEnergy returns Σ ρV·H(T) over the part, J since the start.
 func (r *run) storedEnergy() float64 {
 	sum := 0.0
-	r.forParts(func(c int, m *material) { sum += m.rhoV * m.h.At(r.t[c]) })
+	r.forParts(func(c, _ int, m *material) { sum += m.rhoV * m.h.At(r.t[c]) })
 	return sum
 }
 
@@ -629,8 +643,8 @@ func (r *run) storedEnergy() float64 {
 // extrapolation of the two before (ratio = this step / the one before).
 func (r *run) localError(ratio float64) float64 {
 	lte := 0.0
-	r.forParts(func(c int, _ *material) {
-		lte = max(lte, math.Abs(r.t[c]-r.tn[c]-ratio*(r.tn[c]-r.tnm1[c])))
+	r.forParts(func(c, i int, _ *material) {
+		lte = max(lte, math.Abs(r.t[c]-r.tn[i]-ratio*(r.tn[i]-r.tnm1[i])))
 	})
 	return lte / 2
 }
@@ -638,6 +652,6 @@ func (r *run) localError(ratio float64) float64 {
 // largestChange returns max |T − T(n)| over the part.
 func (r *run) largestChange() float64 {
 	change := 0.0
-	r.forParts(func(c int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[c])) })
+	r.forParts(func(c, i int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[i])) })
 	return change
 }

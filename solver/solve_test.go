@@ -258,7 +258,7 @@ func TestCancel(t *testing.T) {
 
 	r := newRun(p)
 	defer r.ws.stop()
-	r.forParts(func(c int, _ *material) { r.tstar[c], r.tn[c] = 1000, 1000 }) // k is the material's 40
+	r.forParts(func(_, i int, _ *material) { r.tstar[i], r.tn[i] = 1000, 1000 }) // k is the material's 40
 	r.dt, r.coef = 1, backwardEulerCoefficients
 	r.ws.run(r.conductanceTask)
 	r.ws.run(r.fillTask)

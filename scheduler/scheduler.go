@@ -2,7 +2,9 @@
 // for the workers, streams each job's events, takes cancel requests, lists
 // jobs and serves result files. It keeps nothing in memory that matters:
 // records, queue, events and files live in JetStream (package store), so a
-// scheduler may restart, or several may serve the same farm.
+// scheduler may restart, or several may serve the same farm. It is also
+// the only writer of job records: workers ask it by lease calls (see
+// leases.go).
 package scheduler
 
 import (
@@ -56,6 +58,8 @@ type Server struct {
 	health   *health.Server
 	listener net.Listener
 	service  *service
+	leases   *nats.Subscription
+	desk     *leaseDesk
 	// closing ends the watch streams so GracefulStop need not wait on them.
 	closing context.CancelFunc
 	served  chan error
@@ -117,7 +121,15 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 	healthpb.RegisterHealthServer(gs, hs)
 	reflection.Register(gs)
 
-	s := &Server{grpc: gs, health: hs, listener: lis, service: svc, closing: closing, served: make(chan error, 1)}
+	desk := newLeaseDesk()
+	leases, err := st.ServeLeases(func(op store.LeaseOp, req *soakv1.LeaseRequest, answer func(*soakv1.LeaseReply)) {
+		desk.run(func() { svc.serveLease(op, req, answer) })
+	}, cfg.Logger)
+	if err != nil {
+		closing()
+		return nil, fmt.Errorf("scheduler: %w", err)
+	}
+	s := &Server{grpc: gs, health: hs, listener: lis, service: svc, leases: leases, desk: desk, closing: closing, served: make(chan error, 1)}
 	statuses := nc.StatusChanged()
 	s.setHealth(nc.IsConnected())
 	s.bg.Go(func() { s.followNATS(life, nc, statuses) })
@@ -175,6 +187,10 @@ func (s *Server) Close(ctx context.Context) error {
 func (s *Server) close(ctx context.Context) error {
 	s.health.Shutdown()
 	s.closing()
+	if err := s.leases.Unsubscribe(); err != nil {
+		s.service.log.Warn("stop serving lease calls", "err", err)
+	}
+	s.desk.close()
 	stopped := make(chan struct{})
 	go func() {
 		s.grpc.GracefulStop()

@@ -2,6 +2,7 @@ package worker
 
 import (
 	"context"
+	"crypto/rand"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -12,7 +13,6 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go/jetstream"
-	"google.golang.org/protobuf/types/known/timestamppb"
 
 	"soakfarm/pipeline"
 	soakv1 "soakfarm/proto/soak/v1"
@@ -26,36 +26,32 @@ type queue struct {
 	maxDeliver int
 }
 
-// bookkeepingTimeout bounds each record, event or queue call of a job. It
+// bookkeepingTimeout bounds each lease, event or queue call of a job. It
 // does not derive from the worker's context, so that a shutting-down
 // worker still hands its jobs back.
 const bookkeepingTimeout = 10 * time.Second
 
-// Outcomes of claiming a job record.
+// endRetryLimit is how long a worker keeps asking for a job to be ended
+// while no scheduler answers (one restarting, say) before it lets the
+// queue deliver the job again. The job's heartbeat runs meanwhile.
+const endRetryLimit = time.Minute
+
+// Refusals of lease calls.
 var (
 	errAlreadyEnded  = errors.New("job already ended")
 	errHeldElsewhere = errors.New("job is running on another delivery")
 	errNotOurs       = errors.New("job record moved on without this attempt")
 )
 
-// lostWorkerReason closes an attempt whose worker vanished.
-const lostWorkerReason = "worker stopped responding (no heartbeat within the acknowledgement wait)"
-
 // claim is one job this worker has taken.
 type claim struct {
 	id      string
 	attempt uint32
 	worker  string
+	token   []byte // the attempt's lease token
 	msg     jetstream.Msg
 	last    bool // the queue will not deliver the job again
 	log     *slog.Logger
-}
-
-// ours reports whether the record still shows this claim running.
-func (c *claim) ours(job *soakv1.Job) bool {
-	a := store.LastAttempt(job)
-	return job.GetState() == soakv1.JobState_JOB_STATE_RUNNING && a != nil &&
-		a.GetNumber() == c.attempt && a.GetWorker() == c.worker && a.GetEndTime() == nil
 }
 
 func bookkeeping() (context.Context, context.CancelFunc) {
@@ -72,9 +68,10 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 		return
 	}
 	c := &claim{
-		id: id, worker: w.cfg.Name, msg: msg, log: log,
+		id: id, worker: w.cfg.Name, msg: msg, log: log, token: make([]byte, 32),
 		last: q.maxDeliver > 0 && md.NumDelivered >= uint64(q.maxDeliver),
 	}
+	rand.Read(c.token) // never fails (crypto/rand documents it)
 	if md.NumDelivered > 1 {
 		w.cfg.Metrics.redeliveries.Inc()
 	}
@@ -166,41 +163,60 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 	}
 }
 
-// claim moves the record to running under a new attempt, or reports why
-// the message is not to be run. A job cancelled while queued is ended
-// here.
+// claim asks a scheduler to move the record to running under a new
+// attempt held by c's token, or to say why the message is not to be run.
+// A job cancelled while queued is ended by the call.
 func (w *Worker) claim(q queue, c *claim, delivery uint64) (*soakv1.Job, error) {
 	ctx, done := bookkeeping()
 	defer done()
-	return q.store.UpdateJob(ctx, c.id, func(job *soakv1.Job) error {
-		if store.IsFinal(job.GetState()) {
-			return errAlreadyEnded
+	job, err := c.lease(ctx, q, store.LeaseStart, &soakv1.LeaseRequest{Delivery: delivery})
+	if err == nil && !store.IsFinal(job.GetState()) {
+		c.attempt = store.LastAttempt(job).GetNumber()
+	}
+	return job, err
+}
+
+// lease makes a lease call for c and turns a refusal into an error.
+func (c *claim) lease(ctx context.Context, q queue, op store.LeaseOp, req *soakv1.LeaseRequest) (*soakv1.Job, error) {
+	req.JobId, req.Worker, req.Token = c.id, c.worker, c.token
+	reply, err := q.store.Lease(ctx, op, req)
+	if err != nil {
+		return nil, err
+	}
+	switch reply.GetRefusal() {
+	case soakv1.LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED:
+		return reply.GetJob(), nil
+	case soakv1.LeaseRefusal_LEASE_REFUSAL_NOT_FOUND:
+		return nil, fmt.Errorf("job %s: %w", c.id, store.ErrJobNotFound)
+	case soakv1.LeaseRefusal_LEASE_REFUSAL_ENDED:
+		return nil, errAlreadyEnded
+	case soakv1.LeaseRefusal_LEASE_REFUSAL_HELD_ELSEWHERE:
+		return nil, errHeldElsewhere
+	case soakv1.LeaseRefusal_LEASE_REFUSAL_NOT_HOLDER:
+		return nil, errNotOurs
+	default:
+		return nil, fmt.Errorf("lease %s of job %s refused: %s", op, c.id, reply.GetError())
+	}
+}
+
+// end makes a finish or fail call, asking again while no scheduler
+// answers, for up to endRetryLimit.
+func (c *claim) end(q queue, op store.LeaseOp, req *soakv1.LeaseRequest) (*soakv1.Job, error) {
+	giveUp := time.Now().Add(endRetryLimit)
+	for {
+		ctx, done := bookkeeping()
+		job, err := c.lease(ctx, q, op, req)
+		done()
+		if !errors.Is(err, store.ErrNoScheduler) || time.Now().After(giveUp) {
+			return job, err
 		}
-		if job.GetState() == soakv1.JobState_JOB_STATE_RUNNING && delivery == 1 {
-			// A first delivery finding the job running is a second
-			// message for the job, not a redelivery.
-			return errHeldElsewhere
-		}
-		now := time.Now()
-		// A running record on a redelivery: the previous worker is gone.
-		store.CloseOpenAttempt(job, now, lostWorkerReason)
-		if job.GetCancelRequested() {
-			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
-			return nil
-		}
-		c.attempt = uint32(len(job.GetAttempts()) + 1)
-		job.Attempts = append(job.Attempts, &soakv1.Attempt{Number: c.attempt, Worker: c.worker, StartTime: timestamppb.New(now)})
-		job.State = soakv1.JobState_JOB_STATE_RUNNING
-		job.Worker = c.worker
-		if job.GetStartTime() == nil {
-			job.StartTime = timestamppb.New(now)
-		}
-		return nil
-	})
+		c.log.Warn("no scheduler to end the job; asking again", "op", op)
+		time.Sleep(time.Second)
+	}
 }
 
 // heartbeat tells the server the job is in progress every AckWait/3 and
-// reads the record, stopping the run when a cancel notice was missed or
+// renews the lease, stopping the run when a cancel notice was missed or
 // another delivery took the job over.
 func (c *claim) heartbeat(q queue, cancel context.CancelCauseFunc, done <-chan struct{}) {
 	tick := time.NewTicker(max(q.ackWait/3, 100*time.Millisecond))
@@ -215,13 +231,13 @@ func (c *claim) heartbeat(q queue, cancel context.CancelCauseFunc, done <-chan s
 			c.log.Warn("heartbeat", "err", err)
 		}
 		ctx, stop := bookkeeping()
-		job, _, err := q.store.Job(ctx, c.id)
+		job, err := c.lease(ctx, q, store.LeaseRenew, &soakv1.LeaseRequest{})
 		stop()
 		switch {
-		case err != nil:
-			c.log.Warn("heartbeat: read job", "err", err)
-		case !c.ours(job):
+		case errors.Is(err, errNotOurs):
 			cancel(errSuperseded)
+		case err != nil:
+			c.log.Warn("heartbeat: renew lease", "err", err)
 		case job.GetCancelRequested():
 			cancel(errCancelRequested)
 		}
@@ -250,32 +266,19 @@ func (c *claim) appendEvent(q queue, ev *soakv1.JobEvent) {
 	}
 }
 
-// update changes the record if it still shows this claim running.
-func (c *claim) update(q queue, change func(job *soakv1.Job, now time.Time)) (*soakv1.Job, error) {
-	ctx, done := bookkeeping()
-	defer done()
-	return q.store.UpdateJob(ctx, c.id, func(job *soakv1.Job) error {
-		if !c.ours(job) {
-			return errNotOurs
-		}
-		change(job, time.Now())
-		return nil
-	})
-}
-
 // finish uploads the result files and ends the job as finished, unless
-// the record says the attempt lost the job or a cancel came in.
+// the attempt lost the job or a cancel came in.
 func (w *Worker) finish(q queue, c *claim, summary *soakv1.Summary, outDir string) {
 	ctx, done := bookkeeping()
-	job, _, err := q.store.Job(ctx, c.id)
+	job, err := c.lease(ctx, q, store.LeaseRenew, &soakv1.LeaseRequest{})
 	done()
 	switch {
-	case err != nil:
-		w.failAttempt(q, c, fmt.Errorf("read job before upload: %w", err))
-		return
-	case !c.ours(job):
+	case errors.Is(err, errNotOurs):
 		c.log.Warn("job taken over elsewhere; discarding this result")
 		return
+	case err != nil:
+		// No scheduler now, say: upload anyway, the end call asks again.
+		c.log.Warn("renew lease before upload", "err", err)
 	case job.GetCancelRequested():
 		w.cancelled(q, c)
 		return
@@ -285,18 +288,7 @@ func (w *Worker) finish(q queue, c *claim, summary *soakv1.Summary, outDir strin
 		w.failAttempt(q, c, err)
 		return
 	}
-	job, err = c.update(q, func(job *soakv1.Job, now time.Time) {
-		if job.GetCancelRequested() {
-			store.CloseOpenAttempt(job, now, "cancelled")
-			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
-			return
-		}
-		a := store.LastAttempt(job)
-		a.EndTime = timestamppb.New(now)
-		store.End(job, soakv1.JobState_JOB_STATE_FINISHED, now, "")
-		job.Summary = summary
-		job.Artifacts = artifacts
-	})
+	job, err = c.end(q, store.LeaseFinish, &soakv1.LeaseRequest{Summary: summary, Artifacts: artifacts})
 	if errors.Is(err, errNotOurs) {
 		c.log.Warn("job taken over elsewhere; discarding this result")
 		return
@@ -340,10 +332,8 @@ func upload(st *store.Store, c *claim, outDir string) ([]*soakv1.Artifact, error
 
 // cancelled ends the job as cancelled after its run stopped.
 func (w *Worker) cancelled(q queue, c *claim) {
-	job, err := c.update(q, func(job *soakv1.Job, now time.Time) {
-		store.CloseOpenAttempt(job, now, "cancelled")
-		store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
-	})
+	// A fail call ends the job cancelled: the record asks for the cancel.
+	job, err := c.end(q, store.LeaseFail, &soakv1.LeaseRequest{Error: "cancelled"})
 	if errors.Is(err, errNotOurs) {
 		return
 	}
@@ -363,17 +353,7 @@ func (w *Worker) cancelled(q queue, c *claim) {
 func (w *Worker) failAttempt(q queue, c *claim, runErr error) {
 	var limit *limitError
 	permanent := errors.As(runErr, &limit)
-	job, err := c.update(q, func(job *soakv1.Job, now time.Time) {
-		store.CloseOpenAttempt(job, now, runErr.Error())
-		switch {
-		case job.GetCancelRequested():
-			store.End(job, soakv1.JobState_JOB_STATE_CANCELLED, now, job.GetFailureReason())
-		case c.last || permanent:
-			store.End(job, soakv1.JobState_JOB_STATE_FAILED, now, store.AttemptsReport(job))
-		default:
-			job.State = soakv1.JobState_JOB_STATE_QUEUED
-		}
-	})
+	job, err := c.end(q, store.LeaseFail, &soakv1.LeaseRequest{Error: runErr.Error(), Final: c.last || permanent})
 	if errors.Is(err, errNotOurs) {
 		return
 	}
@@ -391,14 +371,19 @@ func (w *Worker) failAttempt(q queue, c *claim, runErr error) {
 	nak(c.msg, time.Duration(c.attempt)*w.cfg.RetryDelay, c.log)
 }
 
-// handBack returns a job to the queue when the worker shuts down.
+// handBack returns a job to the queue when the worker shuts down, or
+// ends it if a cancel came in. It asks a scheduler once: without one the
+// redelivery closes the attempt.
 func (w *Worker) handBack(q queue, c *claim) {
-	_, err := c.update(q, func(job *soakv1.Job, now time.Time) {
-		store.CloseOpenAttempt(job, now, errShutdown.Error())
-		job.State = soakv1.JobState_JOB_STATE_QUEUED
-	})
+	ctx, done := bookkeeping()
+	job, err := c.lease(ctx, q, store.LeaseFail, &soakv1.LeaseRequest{Error: errShutdown.Error()})
+	done()
 	if err != nil && !errors.Is(err, errNotOurs) {
 		c.log.Warn("hand back job", "err", err)
+	}
+	if err == nil && store.IsFinal(job.GetState()) {
+		w.ended(q, c, job)
+		return
 	}
 	c.log.Info("job handed back to the queue")
 	nak(c.msg, 0, c.log)

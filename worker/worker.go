@@ -1,9 +1,12 @@
 // Package worker takes jobs from the farm's JetStream work queue and runs
-// them through the pipeline: it claims the job record, heartbeats while
-// computing, publishes progress and milestones, uploads the result files
-// and ends the job. A worker holds nothing a restart would lose: a job it
-// was running when it died goes back to the queue when its heartbeat
-// stops, and the job record decides who may end a job.
+// them through the pipeline: it asks a scheduler to start the job,
+// heartbeats while computing, publishes progress and milestones, uploads
+// the result files and asks a scheduler to end the job. Only schedulers
+// write job records; a worker's lease token for the attempt it runs is
+// what lets it change that job's record (see store.LeaseOp). A worker
+// holds nothing a restart would lose: a job it was running when it died
+// goes back to the queue when its heartbeat stops. Its NATS connection
+// needs the option store.WorkerInbox.
 package worker
 
 import (

@@ -163,7 +163,7 @@ func (n *natsFlags) register(f *pflag.FlagSet) {
 	f.StringVar(&n.tlsKey, "nats-tls-key", "", "private key of --nats-tls-cert (PEM)")
 }
 
-func (n *natsFlags) connect(name string, log *slog.Logger) (*nats.Conn, error) {
+func (n *natsFlags) connect(name string, log *slog.Logger, extra ...nats.Option) (*nats.Conn, error) {
 	opts := []nats.Option{
 		nats.Name(name),
 		// A long-lived farm process rides out NATS restarts.
@@ -191,7 +191,7 @@ func (n *natsFlags) connect(name string, log *slog.Logger) (*nats.Conn, error) {
 		}
 		opts = append(opts, nats.Secure(cfg))
 	}
-	nc, err := nats.Connect(n.url, opts...)
+	nc, err := nats.Connect(n.url, append(opts, extra...)...)
 	if err != nil {
 		return nil, fmt.Errorf("connect to NATS at %s: %w", n.url, err)
 	}
@@ -455,7 +455,8 @@ func newWorkerCmd(s streams) *cobra.Command {
 			if cfg.Metrics, err = worker.NewMetrics(reg); err != nil {
 				return withCode(ExitFailure, err)
 			}
-			nc, err := conn.connect("soak-worker "+cfg.Name, log)
+			// The worker user may hear replies only under the worker inbox.
+			nc, err := conn.connect("soak-worker "+cfg.Name, log, store.WorkerInbox())
 			if err != nil {
 				return withCode(ExitFailure, err)
 			}

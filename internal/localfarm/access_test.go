@@ -7,6 +7,7 @@ import (
 
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
+	"google.golang.org/protobuf/proto"
 
 	"soakfarm/internal/localfarm"
 	soakv1 "soakfarm/proto/soak/v1"
@@ -34,7 +35,7 @@ func TestWorkerUserRunsJobsButCannotTouchTheRest(t *testing.T) {
 		nc.Close()
 		t.Fatal("connected to the farm's NATS without credentials")
 	}
-	nc, err := nats.Connect(farm.NATSURL(), nats.UserInfo("worker", "worker-secret"))
+	nc, err := nats.Connect(farm.NATSURL(), nats.UserInfo("worker", "worker-secret"), store.WorkerInbox())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -71,12 +72,37 @@ func TestWorkerUserRunsJobsButCannotTouchTheRest(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	jobID := resp.GetJob().GetId()
+	forged, err := proto.Marshal(&soakv1.Job{Id: jobID, State: soakv1.JobState_JOB_STATE_QUEUED, Owner: "forger"})
+	if err != nil {
+		t.Fatal(err)
+	}
 	denied := []struct {
 		name string
 		try  func(ctx context.Context) error
 	}{
 		{"queue a job", func(ctx context.Context) error {
 			_, err := js.Publish(ctx, store.QueueSubject, []byte("01aaaaaaaaaaaaaaaaaaaaaaaa"))
+			return err
+		}},
+		{"write a job record", func(ctx context.Context) error {
+			_, err := js.Publish(ctx, "$KV."+store.JobsBucket+"."+jobID, forged)
+			return err
+		}},
+		{"write a job record through the bucket", func(ctx context.Context) error {
+			kv, err := js.KeyValue(ctx, store.JobsBucket)
+			if err != nil {
+				return err
+			}
+			_, err = kv.Put(ctx, jobID, forged)
+			return err
+		}},
+		{"read a job record", func(ctx context.Context) error {
+			kv, err := js.KeyValue(ctx, store.JobsBucket)
+			if err != nil {
+				return err
+			}
+			_, err = kv.Get(ctx, jobID)
 			return err
 		}},
 		{"write a client key", func(ctx context.Context) error {
@@ -112,6 +138,25 @@ func TestWorkerUserRunsJobsButCannotTouchTheRest(t *testing.T) {
 			t.Errorf("worker user could %s", tc.name)
 		}
 		cancel()
+	}
+	if got, err := c.GetJob(t.Context(), &soakv1.GetJobRequest{JobId: jobID}); err != nil || got.GetJob().GetState() != soakv1.JobState_JOB_STATE_FINISHED {
+		t.Errorf("job record after the denied writes: %v, %v; want it finished", got.GetJob(), err)
+	}
+	// Lease calls carry the tokens: a worker may not overhear them. A
+	// denied subscription never receives.
+	overheard := make(chan struct{}, 1)
+	spy, err := nc.Subscribe("soak.lease.>", func(*nats.Msg) { overheard <- struct{}{} })
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer spy.Unsubscribe()
+	nc.Flush()
+	farm.Conn().Publish("soak.lease.renew", nil)
+	farm.Conn().Flush()
+	select {
+	case <-overheard:
+		t.Error("worker user could overhear lease calls")
+	case <-time.After(500 * time.Millisecond):
 	}
 	// A cancel notice is core NATS: a denied publish never reaches the
 	// subscriber.

@@ -63,17 +63,7 @@ func TestMetricsScrape(t *testing.T) {
 	srv := &http.Server{Handler: promhttp.HandlerFor(reg, promhttp.HandlerOpts{})}
 	go srv.Serve(lis)
 	defer srv.Close()
-	r, err := http.Get("http://" + lis.Addr().String() + "/metrics")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer r.Body.Close()
-	body, err := io.ReadAll(r.Body)
-	if err != nil {
-		t.Fatal(err)
-	}
-	text := string(body)
-	for _, want := range []string{
+	wants := []string{
 		`soak_jobs{state="finished"} 1`,
 		`soak_jobs{state="queued"} 0`,
 		`soak_queue_depth 0`,
@@ -84,10 +74,19 @@ func TestMetricsScrape(t *testing.T) {
 		`soak_redeliveries_total 1`,
 		`soak_failed_attempts_total 1`,
 		`soak_scheduler_nats_connected 1`,
-	} {
-		if !strings.Contains(text, want+"\n") {
-			t.Errorf("scrape lacks %q", want)
+	}
+	// The worker acknowledges the queue message just after the job's final
+	// event, which the watch may see first: scrape again for a while.
+	var text string
+	for range 50 {
+		text = scrape(t, "http://"+lis.Addr().String()+"/metrics")
+		if missing(text, wants) == nil {
+			break
 		}
+		time.Sleep(100 * time.Millisecond)
+	}
+	for _, want := range missing(text, wants) {
+		t.Errorf("scrape lacks %q", want)
 	}
 	// The gauge drops only once the worker's handler returns, which may
 	// be just after the watch saw the job end.
@@ -97,4 +96,29 @@ func TestMetricsScrape(t *testing.T) {
 	if t.Failed() {
 		t.Logf("scrape:\n%s", text)
 	}
+}
+
+func scrape(t *testing.T, url string) string {
+	t.Helper()
+	r, err := http.Get(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Body.Close()
+	body, err := io.ReadAll(r.Body)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return string(body)
+}
+
+// missing lists the lines of wants that text lacks.
+func missing(text string, wants []string) []string {
+	var lacks []string
+	for _, want := range wants {
+		if !strings.Contains(text, want+"\n") {
+			lacks = append(lacks, want)
+		}
+	}
+	return lacks
 }

@@ -7,16 +7,20 @@ type SubjectPermissions struct {
 }
 
 // WorkerPermissions are what a worker needs and no more: take jobs from the
-// one shared consumer and acknowledge them, read and compare-and-set job
-// records, append job events, upload result files and hear cancel notices.
+// one shared consumer and acknowledge them, make lease calls to a
+// scheduler, append job events, upload result files and hear cancel
+// notices. Its replies arrive below the worker inbox root, which a worker
+// connection selects with WorkerInbox.
 //
-// A worker cannot: create, change, purge or delete any stream, bucket or
-// consumer; queue jobs; send cancel notices; write the client-key bucket;
-// read or delete result files; or use any other consumer. It can write any
-// job record (records change by compare-and-set on the record's key, and
-// NATS permissions go by subject, not by the record's content); the
-// compare-and-set keeps its writes in order with the scheduler's, and a
-// job's owner, spec and id live in the record a worker rewrites.
+// A worker cannot: write or read job records (only schedulers do, on the
+// worker's lease calls, and a call changes a record only with the lease
+// token of the record's running attempt); create, change, purge or delete
+// any stream, bucket or consumer; queue jobs; send cancel notices; write
+// the client-key bucket; read or delete result files; use any other
+// consumer; or answer or overhear lease calls. Lease tokens travel only
+// in calls. Workers sharing one NATS user may each subscribe to the whole
+// worker inbox root, so one can read the replies meant for another: the
+// records of the jobs that worker starts and ends, but no token.
 func WorkerPermissions() SubjectPermissions {
 	const api = "$JS.API."
 	queueConsumer := QueueStream + "." + QueueConsumer
@@ -35,13 +39,12 @@ func WorkerPermissions() SubjectPermissions {
 			// Taking and acknowledging jobs.
 			api + "CONSUMER.MSG.NEXT." + queueConsumer,
 			"$JS.ACK." + queueConsumer + ".>",
-			// Reading job records and the last event of a job.
-			api + "DIRECT.GET." + kvJobs + ".>",
-			api + "STREAM.MSG.GET." + kvJobs,
+			// Lease calls to a scheduler.
+			leaseSubjectPrefix + "*",
+			// Reading the last event of a job.
 			api + "DIRECT.GET." + EventsStream + ".>",
 			api + "STREAM.MSG.GET." + EventsStream,
-			// Writing job records (compare-and-set) and events.
-			"$KV." + JobsBucket + ".*",
+			// Appending events.
 			eventsSubjectPrefix + "*",
 			// Uploading result files: chunks and the file's description.
 			"$O." + ResultsBucket + ".C.>",
@@ -50,7 +53,7 @@ func WorkerPermissions() SubjectPermissions {
 			api + "STREAM.MSG.GET." + objResults,
 		},
 		Subscribe: []string{
-			"_INBOX.>",
+			workerInboxPrefix + ">",
 			cancelSubjectPrefix + "*",
 		},
 	}

@@ -1,8 +1,9 @@
 // Package store owns the farm's state on NATS JetStream: job records, the
-// work queue, each job's event log, cancel notices and result files. The
-// scheduler and the workers both go through it, so they agree on names and
-// on how a job moves between states; no process keeps state of its own, so
-// any of them may restart without loss.
+// work queue, each job's event log, cancel notices, result files and the
+// lease calls by which workers ask a scheduler to change the records of
+// the jobs they hold. The scheduler and the workers both go through it, so
+// they agree on names; no process keeps state of its own, so any of them
+// may restart without loss.
 //
 // Names on the server:
 //
@@ -14,6 +15,8 @@
 //	stream        SOAK_DEAD_LETTERS  captures the queue's max-deliveries advisories
 //	object store  soak_results       <job id>/<attempt>/<file name>
 //	core subject  soak.cancel.<id>   cancel notices to the running worker
+//	core subject  soak.lease.<op>    lease calls, worker -> scheduler (request/reply)
+//	core subject  soak.inbox.worker.<random>.>  replies to a worker connection
 package store
 
 import (

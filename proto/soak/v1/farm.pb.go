@@ -82,6 +82,67 @@ func (JobState) EnumDescriptor() ([]byte, []int) {
 	return file_soak_v1_farm_proto_rawDescGZIP(), []int{0}
 }
 
+// Why a lease call was refused; UNSPECIFIED when it was done.
+type LeaseRefusal int32
+
+const (
+	LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED    LeaseRefusal = 0
+	LeaseRefusal_LEASE_REFUSAL_NOT_FOUND      LeaseRefusal = 1
+	LeaseRefusal_LEASE_REFUSAL_ENDED          LeaseRefusal = 2
+	LeaseRefusal_LEASE_REFUSAL_HELD_ELSEWHERE LeaseRefusal = 3
+	// The token does not match the job's running attempt.
+	LeaseRefusal_LEASE_REFUSAL_NOT_HOLDER LeaseRefusal = 4
+	// Anything else; error says what.
+	LeaseRefusal_LEASE_REFUSAL_ERROR LeaseRefusal = 5
+)
+
+// Enum value maps for LeaseRefusal.
+var (
+	LeaseRefusal_name = map[int32]string{
+		0: "LEASE_REFUSAL_UNSPECIFIED",
+		1: "LEASE_REFUSAL_NOT_FOUND",
+		2: "LEASE_REFUSAL_ENDED",
+		3: "LEASE_REFUSAL_HELD_ELSEWHERE",
+		4: "LEASE_REFUSAL_NOT_HOLDER",
+		5: "LEASE_REFUSAL_ERROR",
+	}
+	LeaseRefusal_value = map[string]int32{
+		"LEASE_REFUSAL_UNSPECIFIED":    0,
+		"LEASE_REFUSAL_NOT_FOUND":      1,
+		"LEASE_REFUSAL_ENDED":          2,
+		"LEASE_REFUSAL_HELD_ELSEWHERE": 3,
+		"LEASE_REFUSAL_NOT_HOLDER":     4,
+		"LEASE_REFUSAL_ERROR":          5,
+	}
+)
+
+func (x LeaseRefusal) Enum() *LeaseRefusal {
+	p := new(LeaseRefusal)
+	*p = x
+	return p
+}
+
+func (x LeaseRefusal) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (LeaseRefusal) Descriptor() protoreflect.EnumDescriptor {
+	return file_soak_v1_farm_proto_enumTypes[1].Descriptor()
+}
+
+func (LeaseRefusal) Type() protoreflect.EnumType {
+	return &file_soak_v1_farm_proto_enumTypes[1]
+}
+
+func (x LeaseRefusal) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use LeaseRefusal.Descriptor instead.
+func (LeaseRefusal) EnumDescriptor() ([]byte, []int) {
+	return file_soak_v1_farm_proto_rawDescGZIP(), []int{1}
+}
+
 type Job struct {
 	state      protoimpl.MessageState `protogen:"open.v1"`
 	Id         string                 `protobuf:"bytes,1,opt,name=id,proto3" json:"id,omitempty"`
@@ -239,7 +300,10 @@ type Attempt struct {
 	StartTime *timestamppb.Timestamp `protobuf:"bytes,3,opt,name=start_time,json=startTime,proto3" json:"start_time,omitempty"`
 	EndTime   *timestamppb.Timestamp `protobuf:"bytes,4,opt,name=end_time,json=endTime,proto3" json:"end_time,omitempty"`
 	// Empty when the attempt succeeded.
-	Error         string `protobuf:"bytes,5,opt,name=error,proto3" json:"error,omitempty"`
+	Error string `protobuf:"bytes,5,opt,name=error,proto3" json:"error,omitempty"`
+	// SHA-256 of the lease token the attempt's worker chose at start; the
+	// worker shows the token to change the record.
+	LeaseSha256   []byte `protobuf:"bytes,6,opt,name=lease_sha256,json=leaseSha256,proto3" json:"lease_sha256,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -307,6 +371,13 @@ func (x *Attempt) GetError() string {
 		return x.Error
 	}
 	return ""
+}
+
+func (x *Attempt) GetLeaseSha256() []byte {
+	if x != nil {
+		return x.LeaseSha256
+	}
+	return nil
 }
 
 type Artifact struct {
@@ -1518,6 +1589,176 @@ func (x *FetchArtifactResponse) GetArtifact() *Artifact {
 	return nil
 }
 
+// Lease calls: a worker asks a scheduler, by NATS request/reply on
+// soak.lease.<start|renew|finish|fail>, to change the record of a job it
+// holds. Only schedulers write job records.
+type LeaseRequest struct {
+	state  protoimpl.MessageState `protogen:"open.v1"`
+	JobId  string                 `protobuf:"bytes,1,opt,name=job_id,json=jobId,proto3" json:"job_id,omitempty"`
+	Worker string                 `protobuf:"bytes,2,opt,name=worker,proto3" json:"worker,omitempty"`
+	// start: the queue's delivery count of the message.
+	Delivery uint64 `protobuf:"varint,3,opt,name=delivery,proto3" json:"delivery,omitempty"`
+	// The attempt's lease token: 32 random bytes the worker picks at start
+	// and shows on every later call. It travels only on lease subjects,
+	// which no worker may subscribe to.
+	Token []byte `protobuf:"bytes,4,opt,name=token,proto3" json:"token,omitempty"`
+	// fail: why the attempt failed, and whether no attempt follows.
+	Error string `protobuf:"bytes,5,opt,name=error,proto3" json:"error,omitempty"`
+	Final bool   `protobuf:"varint,6,opt,name=final,proto3" json:"final,omitempty"`
+	// finish: the result.
+	Summary       *Summary    `protobuf:"bytes,7,opt,name=summary,proto3" json:"summary,omitempty"`
+	Artifacts     []*Artifact `protobuf:"bytes,8,rep,name=artifacts,proto3" json:"artifacts,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *LeaseRequest) Reset() {
+	*x = LeaseRequest{}
+	mi := &file_soak_v1_farm_proto_msgTypes[23]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *LeaseRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*LeaseRequest) ProtoMessage() {}
+
+func (x *LeaseRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_farm_proto_msgTypes[23]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use LeaseRequest.ProtoReflect.Descriptor instead.
+func (*LeaseRequest) Descriptor() ([]byte, []int) {
+	return file_soak_v1_farm_proto_rawDescGZIP(), []int{23}
+}
+
+func (x *LeaseRequest) GetJobId() string {
+	if x != nil {
+		return x.JobId
+	}
+	return ""
+}
+
+func (x *LeaseRequest) GetWorker() string {
+	if x != nil {
+		return x.Worker
+	}
+	return ""
+}
+
+func (x *LeaseRequest) GetDelivery() uint64 {
+	if x != nil {
+		return x.Delivery
+	}
+	return 0
+}
+
+func (x *LeaseRequest) GetToken() []byte {
+	if x != nil {
+		return x.Token
+	}
+	return nil
+}
+
+func (x *LeaseRequest) GetError() string {
+	if x != nil {
+		return x.Error
+	}
+	return ""
+}
+
+func (x *LeaseRequest) GetFinal() bool {
+	if x != nil {
+		return x.Final
+	}
+	return false
+}
+
+func (x *LeaseRequest) GetSummary() *Summary {
+	if x != nil {
+		return x.Summary
+	}
+	return nil
+}
+
+func (x *LeaseRequest) GetArtifacts() []*Artifact {
+	if x != nil {
+		return x.Artifacts
+	}
+	return nil
+}
+
+type LeaseReply struct {
+	state   protoimpl.MessageState `protogen:"open.v1"`
+	Refusal LeaseRefusal           `protobuf:"varint,1,opt,name=refusal,proto3,enum=soak.v1.LeaseRefusal" json:"refusal,omitempty"`
+	Error   string                 `protobuf:"bytes,2,opt,name=error,proto3" json:"error,omitempty"`
+	// The record after the call.
+	Job           *Job `protobuf:"bytes,3,opt,name=job,proto3" json:"job,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *LeaseReply) Reset() {
+	*x = LeaseReply{}
+	mi := &file_soak_v1_farm_proto_msgTypes[24]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *LeaseReply) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*LeaseReply) ProtoMessage() {}
+
+func (x *LeaseReply) ProtoReflect() protoreflect.Message {
+	mi := &file_soak_v1_farm_proto_msgTypes[24]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use LeaseReply.ProtoReflect.Descriptor instead.
+func (*LeaseReply) Descriptor() ([]byte, []int) {
+	return file_soak_v1_farm_proto_rawDescGZIP(), []int{24}
+}
+
+func (x *LeaseReply) GetRefusal() LeaseRefusal {
+	if x != nil {
+		return x.Refusal
+	}
+	return LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED
+}
+
+func (x *LeaseReply) GetError() string {
+	if x != nil {
+		return x.Error
+	}
+	return ""
+}
+
+func (x *LeaseReply) GetJob() *Job {
+	if x != nil {
+		return x.Job
+	}
+	return nil
+}
+
 var File_soak_v1_farm_proto protoreflect.FileDescriptor
 
 const file_soak_v1_farm_proto_rawDesc = "" +
@@ -1541,14 +1782,15 @@ const file_soak_v1_farm_proto_rawDesc = "" +
 	"\asummary\x18\v \x01(\v2\x10.soak.v1.SummaryR\asummary\x12/\n" +
 	"\tartifacts\x18\f \x03(\v2\x11.soak.v1.ArtifactR\tartifacts\x12)\n" +
 	"\x10cancel_requested\x18\r \x01(\bR\x0fcancelRequested\x12\x14\n" +
-	"\x05owner\x18\x0e \x01(\tR\x05owner\"\xc1\x01\n" +
+	"\x05owner\x18\x0e \x01(\tR\x05owner\"\xe4\x01\n" +
 	"\aAttempt\x12\x16\n" +
 	"\x06number\x18\x01 \x01(\rR\x06number\x12\x16\n" +
 	"\x06worker\x18\x02 \x01(\tR\x06worker\x129\n" +
 	"\n" +
 	"start_time\x18\x03 \x01(\v2\x1a.google.protobuf.TimestampR\tstartTime\x125\n" +
 	"\bend_time\x18\x04 \x01(\v2\x1a.google.protobuf.TimestampR\aendTime\x12\x14\n" +
-	"\x05error\x18\x05 \x01(\tR\x05error\"U\n" +
+	"\x05error\x18\x05 \x01(\tR\x05error\x12!\n" +
+	"\flease_sha256\x18\x06 \x01(\fR\vleaseSha256\"U\n" +
 	"\bArtifact\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x1d\n" +
 	"\n" +
@@ -1623,14 +1865,35 @@ const file_soak_v1_farm_proto_rawDesc = "" +
 	"\x04name\x18\x02 \x01(\tR\x04name\"\\\n" +
 	"\x15FetchArtifactResponse\x12\x14\n" +
 	"\x05chunk\x18\x01 \x01(\fR\x05chunk\x12-\n" +
-	"\bartifact\x18\x02 \x01(\v2\x11.soak.v1.ArtifactR\bartifact*\x99\x01\n" +
+	"\bartifact\x18\x02 \x01(\v2\x11.soak.v1.ArtifactR\bartifact\"\xf8\x01\n" +
+	"\fLeaseRequest\x12\x15\n" +
+	"\x06job_id\x18\x01 \x01(\tR\x05jobId\x12\x16\n" +
+	"\x06worker\x18\x02 \x01(\tR\x06worker\x12\x1a\n" +
+	"\bdelivery\x18\x03 \x01(\x04R\bdelivery\x12\x14\n" +
+	"\x05token\x18\x04 \x01(\fR\x05token\x12\x14\n" +
+	"\x05error\x18\x05 \x01(\tR\x05error\x12\x14\n" +
+	"\x05final\x18\x06 \x01(\bR\x05final\x12*\n" +
+	"\asummary\x18\a \x01(\v2\x10.soak.v1.SummaryR\asummary\x12/\n" +
+	"\tartifacts\x18\b \x03(\v2\x11.soak.v1.ArtifactR\tartifacts\"s\n" +
+	"\n" +
+	"LeaseReply\x12/\n" +
+	"\arefusal\x18\x01 \x01(\x0e2\x15.soak.v1.LeaseRefusalR\arefusal\x12\x14\n" +
+	"\x05error\x18\x02 \x01(\tR\x05error\x12\x1e\n" +
+	"\x03job\x18\x03 \x01(\v2\f.soak.v1.JobR\x03job*\x99\x01\n" +
 	"\bJobState\x12\x19\n" +
 	"\x15JOB_STATE_UNSPECIFIED\x10\x00\x12\x14\n" +
 	"\x10JOB_STATE_QUEUED\x10\x01\x12\x15\n" +
 	"\x11JOB_STATE_RUNNING\x10\x02\x12\x16\n" +
 	"\x12JOB_STATE_FINISHED\x10\x03\x12\x14\n" +
 	"\x10JOB_STATE_FAILED\x10\x04\x12\x17\n" +
-	"\x13JOB_STATE_CANCELLED\x10\x052\xa6\x03\n" +
+	"\x13JOB_STATE_CANCELLED\x10\x05*\xbc\x01\n" +
+	"\fLeaseRefusal\x12\x1d\n" +
+	"\x19LEASE_REFUSAL_UNSPECIFIED\x10\x00\x12\x1b\n" +
+	"\x17LEASE_REFUSAL_NOT_FOUND\x10\x01\x12\x17\n" +
+	"\x13LEASE_REFUSAL_ENDED\x10\x02\x12 \n" +
+	"\x1cLEASE_REFUSAL_HELD_ELSEWHERE\x10\x03\x12\x1c\n" +
+	"\x18LEASE_REFUSAL_NOT_HOLDER\x10\x04\x12\x17\n" +
+	"\x13LEASE_REFUSAL_ERROR\x10\x052\xa6\x03\n" +
 	"\vFarmService\x12B\n" +
 	"\tSubmitJob\x12\x19.soak.v1.SubmitJobRequest\x1a\x1a.soak.v1.SubmitJobResponse\x12A\n" +
 	"\bWatchJob\x12\x18.soak.v1.WatchJobRequest\x1a\x19.soak.v1.WatchJobResponse0\x01\x12B\n" +
@@ -1651,85 +1914,92 @@ func file_soak_v1_farm_proto_rawDescGZIP() []byte {
 	return file_soak_v1_farm_proto_rawDescData
 }
 
-var file_soak_v1_farm_proto_enumTypes = make([]protoimpl.EnumInfo, 1)
-var file_soak_v1_farm_proto_msgTypes = make([]protoimpl.MessageInfo, 23)
+var file_soak_v1_farm_proto_enumTypes = make([]protoimpl.EnumInfo, 2)
+var file_soak_v1_farm_proto_msgTypes = make([]protoimpl.MessageInfo, 25)
 var file_soak_v1_farm_proto_goTypes = []any{
 	(JobState)(0),                 // 0: soak.v1.JobState
-	(*Job)(nil),                   // 1: soak.v1.Job
-	(*Attempt)(nil),               // 2: soak.v1.Attempt
-	(*Artifact)(nil),              // 3: soak.v1.Artifact
-	(*JobEvent)(nil),              // 4: soak.v1.JobEvent
-	(*JobQueued)(nil),             // 5: soak.v1.JobQueued
-	(*JobStarted)(nil),            // 6: soak.v1.JobStarted
-	(*JobProgress)(nil),           // 7: soak.v1.JobProgress
-	(*MilestoneReached)(nil),      // 8: soak.v1.MilestoneReached
-	(*JobFinished)(nil),           // 9: soak.v1.JobFinished
-	(*JobFailed)(nil),             // 10: soak.v1.JobFailed
-	(*JobCancelled)(nil),          // 11: soak.v1.JobCancelled
-	(*SubmitJobRequest)(nil),      // 12: soak.v1.SubmitJobRequest
-	(*SubmitJobResponse)(nil),     // 13: soak.v1.SubmitJobResponse
-	(*WatchJobRequest)(nil),       // 14: soak.v1.WatchJobRequest
-	(*WatchJobResponse)(nil),      // 15: soak.v1.WatchJobResponse
-	(*CancelJobRequest)(nil),      // 16: soak.v1.CancelJobRequest
-	(*CancelJobResponse)(nil),     // 17: soak.v1.CancelJobResponse
-	(*GetJobRequest)(nil),         // 18: soak.v1.GetJobRequest
-	(*GetJobResponse)(nil),        // 19: soak.v1.GetJobResponse
-	(*ListJobsRequest)(nil),       // 20: soak.v1.ListJobsRequest
-	(*ListJobsResponse)(nil),      // 21: soak.v1.ListJobsResponse
-	(*FetchArtifactRequest)(nil),  // 22: soak.v1.FetchArtifactRequest
-	(*FetchArtifactResponse)(nil), // 23: soak.v1.FetchArtifactResponse
-	(*JobSpec)(nil),               // 24: soak.v1.JobSpec
-	(*timestamppb.Timestamp)(nil), // 25: google.protobuf.Timestamp
-	(*Summary)(nil),               // 26: soak.v1.Summary
-	(*ProbeReading)(nil),          // 27: soak.v1.ProbeReading
+	(LeaseRefusal)(0),             // 1: soak.v1.LeaseRefusal
+	(*Job)(nil),                   // 2: soak.v1.Job
+	(*Attempt)(nil),               // 3: soak.v1.Attempt
+	(*Artifact)(nil),              // 4: soak.v1.Artifact
+	(*JobEvent)(nil),              // 5: soak.v1.JobEvent
+	(*JobQueued)(nil),             // 6: soak.v1.JobQueued
+	(*JobStarted)(nil),            // 7: soak.v1.JobStarted
+	(*JobProgress)(nil),           // 8: soak.v1.JobProgress
+	(*MilestoneReached)(nil),      // 9: soak.v1.MilestoneReached
+	(*JobFinished)(nil),           // 10: soak.v1.JobFinished
+	(*JobFailed)(nil),             // 11: soak.v1.JobFailed
+	(*JobCancelled)(nil),          // 12: soak.v1.JobCancelled
+	(*SubmitJobRequest)(nil),      // 13: soak.v1.SubmitJobRequest
+	(*SubmitJobResponse)(nil),     // 14: soak.v1.SubmitJobResponse
+	(*WatchJobRequest)(nil),       // 15: soak.v1.WatchJobRequest
+	(*WatchJobResponse)(nil),      // 16: soak.v1.WatchJobResponse
+	(*CancelJobRequest)(nil),      // 17: soak.v1.CancelJobRequest
+	(*CancelJobResponse)(nil),     // 18: soak.v1.CancelJobResponse
+	(*GetJobRequest)(nil),         // 19: soak.v1.GetJobRequest
+	(*GetJobResponse)(nil),        // 20: soak.v1.GetJobResponse
+	(*ListJobsRequest)(nil),       // 21: soak.v1.ListJobsRequest
+	(*ListJobsResponse)(nil),      // 22: soak.v1.ListJobsResponse
+	(*FetchArtifactRequest)(nil),  // 23: soak.v1.FetchArtifactRequest
+	(*FetchArtifactResponse)(nil), // 24: soak.v1.FetchArtifactResponse
+	(*LeaseRequest)(nil),          // 25: soak.v1.LeaseRequest
+	(*LeaseReply)(nil),            // 26: soak.v1.LeaseReply
+	(*JobSpec)(nil),               // 27: soak.v1.JobSpec
+	(*timestamppb.Timestamp)(nil), // 28: google.protobuf.Timestamp
+	(*Summary)(nil),               // 29: soak.v1.Summary
+	(*ProbeReading)(nil),          // 30: soak.v1.ProbeReading
 }
 var file_soak_v1_farm_proto_depIdxs = []int32{
-	24, // 0: soak.v1.Job.spec:type_name -> soak.v1.JobSpec
+	27, // 0: soak.v1.Job.spec:type_name -> soak.v1.JobSpec
 	0,  // 1: soak.v1.Job.state:type_name -> soak.v1.JobState
-	25, // 2: soak.v1.Job.submit_time:type_name -> google.protobuf.Timestamp
-	25, // 3: soak.v1.Job.start_time:type_name -> google.protobuf.Timestamp
-	25, // 4: soak.v1.Job.end_time:type_name -> google.protobuf.Timestamp
-	2,  // 5: soak.v1.Job.attempts:type_name -> soak.v1.Attempt
-	26, // 6: soak.v1.Job.summary:type_name -> soak.v1.Summary
-	3,  // 7: soak.v1.Job.artifacts:type_name -> soak.v1.Artifact
-	25, // 8: soak.v1.Attempt.start_time:type_name -> google.protobuf.Timestamp
-	25, // 9: soak.v1.Attempt.end_time:type_name -> google.protobuf.Timestamp
-	25, // 10: soak.v1.JobEvent.time:type_name -> google.protobuf.Timestamp
-	5,  // 11: soak.v1.JobEvent.queued:type_name -> soak.v1.JobQueued
-	6,  // 12: soak.v1.JobEvent.started:type_name -> soak.v1.JobStarted
-	7,  // 13: soak.v1.JobEvent.progress:type_name -> soak.v1.JobProgress
-	8,  // 14: soak.v1.JobEvent.milestone:type_name -> soak.v1.MilestoneReached
-	9,  // 15: soak.v1.JobEvent.finished:type_name -> soak.v1.JobFinished
-	10, // 16: soak.v1.JobEvent.failed:type_name -> soak.v1.JobFailed
-	11, // 17: soak.v1.JobEvent.cancelled:type_name -> soak.v1.JobCancelled
-	27, // 18: soak.v1.JobProgress.probes:type_name -> soak.v1.ProbeReading
-	26, // 19: soak.v1.JobFinished.summary:type_name -> soak.v1.Summary
-	3,  // 20: soak.v1.JobFinished.artifacts:type_name -> soak.v1.Artifact
-	24, // 21: soak.v1.SubmitJobRequest.spec:type_name -> soak.v1.JobSpec
-	1,  // 22: soak.v1.SubmitJobResponse.job:type_name -> soak.v1.Job
-	4,  // 23: soak.v1.WatchJobResponse.event:type_name -> soak.v1.JobEvent
-	1,  // 24: soak.v1.CancelJobResponse.job:type_name -> soak.v1.Job
-	1,  // 25: soak.v1.GetJobResponse.job:type_name -> soak.v1.Job
+	28, // 2: soak.v1.Job.submit_time:type_name -> google.protobuf.Timestamp
+	28, // 3: soak.v1.Job.start_time:type_name -> google.protobuf.Timestamp
+	28, // 4: soak.v1.Job.end_time:type_name -> google.protobuf.Timestamp
+	3,  // 5: soak.v1.Job.attempts:type_name -> soak.v1.Attempt
+	29, // 6: soak.v1.Job.summary:type_name -> soak.v1.Summary
+	4,  // 7: soak.v1.Job.artifacts:type_name -> soak.v1.Artifact
+	28, // 8: soak.v1.Attempt.start_time:type_name -> google.protobuf.Timestamp
+	28, // 9: soak.v1.Attempt.end_time:type_name -> google.protobuf.Timestamp
+	28, // 10: soak.v1.JobEvent.time:type_name -> google.protobuf.Timestamp
+	6,  // 11: soak.v1.JobEvent.queued:type_name -> soak.v1.JobQueued
+	7,  // 12: soak.v1.JobEvent.started:type_name -> soak.v1.JobStarted
+	8,  // 13: soak.v1.JobEvent.progress:type_name -> soak.v1.JobProgress
+	9,  // 14: soak.v1.JobEvent.milestone:type_name -> soak.v1.MilestoneReached
+	10, // 15: soak.v1.JobEvent.finished:type_name -> soak.v1.JobFinished
+	11, // 16: soak.v1.JobEvent.failed:type_name -> soak.v1.JobFailed
+	12, // 17: soak.v1.JobEvent.cancelled:type_name -> soak.v1.JobCancelled
+	30, // 18: soak.v1.JobProgress.probes:type_name -> soak.v1.ProbeReading
+	29, // 19: soak.v1.JobFinished.summary:type_name -> soak.v1.Summary
+	4,  // 20: soak.v1.JobFinished.artifacts:type_name -> soak.v1.Artifact
+	27, // 21: soak.v1.SubmitJobRequest.spec:type_name -> soak.v1.JobSpec
+	2,  // 22: soak.v1.SubmitJobResponse.job:type_name -> soak.v1.Job
+	5,  // 23: soak.v1.WatchJobResponse.event:type_name -> soak.v1.JobEvent
+	2,  // 24: soak.v1.CancelJobResponse.job:type_name -> soak.v1.Job
+	2,  // 25: soak.v1.GetJobResponse.job:type_name -> soak.v1.Job
 	0,  // 26: soak.v1.ListJobsRequest.states:type_name -> soak.v1.JobState
-	1,  // 27: soak.v1.ListJobsResponse.jobs:type_name -> soak.v1.Job
-	3,  // 28: soak.v1.FetchArtifactResponse.artifact:type_name -> soak.v1.Artifact
-	12, // 29: soak.v1.FarmService.SubmitJob:input_type -> soak.v1.SubmitJobRequest
-	14, // 30: soak.v1.FarmService.WatchJob:input_type -> soak.v1.WatchJobRequest
-	16, // 31: soak.v1.FarmService.CancelJob:input_type -> soak.v1.CancelJobRequest
-	18, // 32: soak.v1.FarmService.GetJob:input_type -> soak.v1.GetJobRequest
-	20, // 33: soak.v1.FarmService.ListJobs:input_type -> soak.v1.ListJobsRequest
-	22, // 34: soak.v1.FarmService.FetchArtifact:input_type -> soak.v1.FetchArtifactRequest
-	13, // 35: soak.v1.FarmService.SubmitJob:output_type -> soak.v1.SubmitJobResponse
-	15, // 36: soak.v1.FarmService.WatchJob:output_type -> soak.v1.WatchJobResponse
-	17, // 37: soak.v1.FarmService.CancelJob:output_type -> soak.v1.CancelJobResponse
-	19, // 38: soak.v1.FarmService.GetJob:output_type -> soak.v1.GetJobResponse
-	21, // 39: soak.v1.FarmService.ListJobs:output_type -> soak.v1.ListJobsResponse
-	23, // 40: soak.v1.FarmService.FetchArtifact:output_type -> soak.v1.FetchArtifactResponse
-	35, // [35:41] is the sub-list for method output_type
-	29, // [29:35] is the sub-list for method input_type
-	29, // [29:29] is the sub-list for extension type_name
-	29, // [29:29] is the sub-list for extension extendee
-	0,  // [0:29] is the sub-list for field type_name
+	2,  // 27: soak.v1.ListJobsResponse.jobs:type_name -> soak.v1.Job
+	4,  // 28: soak.v1.FetchArtifactResponse.artifact:type_name -> soak.v1.Artifact
+	29, // 29: soak.v1.LeaseRequest.summary:type_name -> soak.v1.Summary
+	4,  // 30: soak.v1.LeaseRequest.artifacts:type_name -> soak.v1.Artifact
+	1,  // 31: soak.v1.LeaseReply.refusal:type_name -> soak.v1.LeaseRefusal
+	2,  // 32: soak.v1.LeaseReply.job:type_name -> soak.v1.Job
+	13, // 33: soak.v1.FarmService.SubmitJob:input_type -> soak.v1.SubmitJobRequest
+	15, // 34: soak.v1.FarmService.WatchJob:input_type -> soak.v1.WatchJobRequest
+	17, // 35: soak.v1.FarmService.CancelJob:input_type -> soak.v1.CancelJobRequest
+	19, // 36: soak.v1.FarmService.GetJob:input_type -> soak.v1.GetJobRequest
+	21, // 37: soak.v1.FarmService.ListJobs:input_type -> soak.v1.ListJobsRequest
+	23, // 38: soak.v1.FarmService.FetchArtifact:input_type -> soak.v1.FetchArtifactRequest
+	14, // 39: soak.v1.FarmService.SubmitJob:output_type -> soak.v1.SubmitJobResponse
+	16, // 40: soak.v1.FarmService.WatchJob:output_type -> soak.v1.WatchJobResponse
+	18, // 41: soak.v1.FarmService.CancelJob:output_type -> soak.v1.CancelJobResponse
+	20, // 42: soak.v1.FarmService.GetJob:output_type -> soak.v1.GetJobResponse
+	22, // 43: soak.v1.FarmService.ListJobs:output_type -> soak.v1.ListJobsResponse
+	24, // 44: soak.v1.FarmService.FetchArtifact:output_type -> soak.v1.FetchArtifactResponse
+	39, // [39:45] is the sub-list for method output_type
+	33, // [33:39] is the sub-list for method input_type
+	33, // [33:33] is the sub-list for extension type_name
+	33, // [33:33] is the sub-list for extension extendee
+	0,  // [0:33] is the sub-list for field type_name
 }
 
 func init() { file_soak_v1_farm_proto_init() }
@@ -1753,8 +2023,8 @@ func file_soak_v1_farm_proto_init() {
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_soak_v1_farm_proto_rawDesc), len(file_soak_v1_farm_proto_rawDesc)),
-			NumEnums:      1,
-			NumMessages:   23,
+			NumEnums:      2,
+			NumMessages:   25,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

@@ -30,8 +30,9 @@ func partIndex(spans []span, c int) int {
 // arrays over the whole grid box: gx[c] couples c and c+1, gy[c]
 // couples c and c+nx, gz[c] couples c and c+nx·ny, and a coefficient is 0
 // where either cell lies outside the part. Whole-box arrays keep the
-// neighbour arithmetic trivial; compacting to part cells would save memory
-// on sparse parts.
+// neighbour arithmetic trivial; on sparse parts a layout of small bricks
+// holding only those that touch the part would save what they cost
+// outside it.
 //
 // The face conductances are float32, rounded once when they are set: the
 // operator with the rounded values is exactly symmetric, and its diagonal

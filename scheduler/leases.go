@@ -148,7 +148,11 @@ func (s *service) startLease(ctx context.Context, req *soakv1.LeaseRequest) (*so
 		return nil, fmt.Errorf("job %q: %w", req.GetJobId(), store.ErrJobNotFound)
 	}
 	hash := sha256.Sum256(req.GetToken())
-	return s.store.UpdateJob(ctx, req.GetJobId(), func(job *soakv1.Job) error {
+	job, err := s.store.UpdateJob(ctx, req.GetJobId(), func(job *soakv1.Job) error {
+		if holds(job, req) {
+			// A repeat of this start, its reply lost.
+			return errNoChange
+		}
 		if store.IsFinal(job.GetState()) {
 			return errLeaseEnded
 		}
@@ -175,6 +179,10 @@ func (s *service) startLease(ctx context.Context, req *soakv1.LeaseRequest) (*so
 		}
 		return nil
 	})
+	if errors.Is(err, errNoChange) {
+		return job, nil
+	}
+	return job, err
 }
 
 // renewLease reports the state of a job its caller holds, without the
@@ -191,24 +199,38 @@ func (s *service) renewLease(ctx context.Context, req *soakv1.LeaseRequest) (*so
 }
 
 // holderUpdate changes the record if req's token holds its running
-// attempt.
+// attempt. A call whose token belongs to the job's last attempt, already
+// ended, is taken for a repeat of the call that ended it, whose reply was
+// lost (NATS going down between the write and the reply, say): it gets
+// the record as it is, so the worker acknowledges the queue message.
 func (s *service) holderUpdate(ctx context.Context, req *soakv1.LeaseRequest, change func(job *soakv1.Job, now time.Time)) (*soakv1.Job, error) {
-	return s.store.UpdateJob(ctx, req.GetJobId(), func(job *soakv1.Job) error {
-		if !holds(job, req) {
-			return errNotLeaseHolder
+	job, err := s.store.UpdateJob(ctx, req.GetJobId(), func(job *soakv1.Job) error {
+		if holds(job, req) {
+			change(job, time.Now())
+			return nil
 		}
-		change(job, time.Now())
-		return nil
+		if a := store.LastAttempt(job); a != nil && a.GetEndTime() != nil && job.GetState() != soakv1.JobState_JOB_STATE_RUNNING && tokenOf(a, req) {
+			return errNoChange
+		}
+		return errNotLeaseHolder
 	})
+	if errors.Is(err, errNoChange) {
+		return job, nil
+	}
+	return job, err
 }
 
 // holds reports whether req's token and worker hold the job's running
-// attempt. The hashes are compared in constant time.
+// attempt.
 func holds(job *soakv1.Job, req *soakv1.LeaseRequest) bool {
 	a := store.LastAttempt(job)
-	if job.GetState() != soakv1.JobState_JOB_STATE_RUNNING || a == nil || a.GetEndTime() != nil || a.GetWorker() != req.GetWorker() {
-		return false
-	}
+	return job.GetState() == soakv1.JobState_JOB_STATE_RUNNING && a != nil && a.GetEndTime() == nil && tokenOf(a, req)
+}
+
+// tokenOf reports whether req's token and worker are those of attempt a.
+// The hashes are compared in constant time.
+func tokenOf(a *soakv1.Attempt, req *soakv1.LeaseRequest) bool {
 	hash := sha256.Sum256(req.GetToken())
-	return len(a.GetLeaseSha256()) == sha256.Size && subtle.ConstantTimeCompare(hash[:], a.GetLeaseSha256()) == 1
+	return a.GetWorker() == req.GetWorker() && len(a.GetLeaseSha256()) == sha256.Size &&
+		subtle.ConstantTimeCompare(hash[:], a.GetLeaseSha256()) == 1
 }

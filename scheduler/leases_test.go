@@ -40,6 +40,10 @@ func TestLeaseCallsNeedTheRunningAttemptsToken(t *testing.T) {
 		{"start", store.LeaseStart,
 			&soakv1.LeaseRequest{Worker: "w1", Delivery: 1, Token: holder},
 			soakv1.LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED, soakv1.JobState_JOB_STATE_RUNNING},
+		// A repeat of the start, its reply lost, gets the record it made.
+		{"start again with the same token", store.LeaseStart,
+			&soakv1.LeaseRequest{Worker: "w1", Delivery: 1, Token: holder},
+			soakv1.LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED, soakv1.JobState_JOB_STATE_RUNNING},
 		{"second first delivery", store.LeaseStart,
 			&soakv1.LeaseRequest{Worker: "w2", Delivery: 1, Token: stranger},
 			soakv1.LeaseRefusal_LEASE_REFUSAL_HELD_ELSEWHERE, soakv1.JobState_JOB_STATE_RUNNING},
@@ -58,8 +62,13 @@ func TestLeaseCallsNeedTheRunningAttemptsToken(t *testing.T) {
 		{"finish", store.LeaseFinish,
 			&soakv1.LeaseRequest{Worker: "w1", Token: holder, Summary: &soakv1.Summary{}},
 			soakv1.LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED, soakv1.JobState_JOB_STATE_FINISHED},
-		{"fail after the end", store.LeaseFail,
-			&soakv1.LeaseRequest{Worker: "w1", Token: holder, Error: "late"},
+		// A repeat of the ending call, its reply lost, gets the record
+		// unchanged.
+		{"finish again", store.LeaseFinish,
+			&soakv1.LeaseRequest{Worker: "w1", Token: holder, Summary: &soakv1.Summary{StopReason: "repeat"}},
+			soakv1.LeaseRefusal_LEASE_REFUSAL_UNSPECIFIED, soakv1.JobState_JOB_STATE_FINISHED},
+		{"fail after the end with a wrong token", store.LeaseFail,
+			&soakv1.LeaseRequest{Worker: "w1", Token: stranger, Error: "late"},
 			soakv1.LeaseRefusal_LEASE_REFUSAL_NOT_HOLDER, soakv1.JobState_JOB_STATE_FINISHED},
 		{"start after the end", store.LeaseStart,
 			&soakv1.LeaseRequest{Worker: "w2", Delivery: 2, Token: stranger},
@@ -83,6 +92,9 @@ func TestLeaseCallsNeedTheRunningAttemptsToken(t *testing.T) {
 		}
 	}
 	job := getJob(t, client, id)
+	if job.GetSummary().GetStopReason() != "" {
+		t.Errorf("a repeated finish changed the summary: %v", job.GetSummary())
+	}
 	if n := len(job.GetAttempts()); n != 1 || job.GetAttempts()[0].GetError() != "" || job.GetAttempts()[0].GetWorker() != "w1" {
 		t.Errorf("attempts %v, want one clean attempt on w1", job.GetAttempts())
 	}

@@ -36,6 +36,16 @@ const bookkeepingTimeout = 10 * time.Second
 // queue deliver the job again. The job's heartbeat runs meanwhile.
 const endRetryLimit = time.Minute
 
+// startRetryLimit is how long a worker keeps asking to start a job while
+// no scheduler answers. A start whose reply was lost may have been done:
+// asking again with the same token gets the record it made, where giving
+// up would leave the job running without anyone computing it.
+const startRetryLimit = 30 * time.Second
+
+// errSchedulerTrouble: a scheduler answered but could not do the call
+// (its NATS link failing, say); the call may have been done.
+var errSchedulerTrouble = errors.New("scheduler could not do the call")
+
 // Refusals of lease calls.
 var (
 	errAlreadyEnded  = errors.New("job already ended")
@@ -167,9 +177,12 @@ func (w *Worker) handle(runCtx context.Context, q queue, msg jetstream.Msg) {
 // attempt held by c's token, or to say why the message is not to be run.
 // A job cancelled while queued is ended by the call.
 func (w *Worker) claim(q queue, c *claim, delivery uint64) (*soakv1.Job, error) {
-	ctx, done := bookkeeping()
-	defer done()
-	job, err := c.lease(ctx, q, store.LeaseStart, &soakv1.LeaseRequest{Delivery: delivery})
+	job, err := c.retry(q, store.LeaseStart, &soakv1.LeaseRequest{Delivery: delivery}, startRetryLimit, func() {
+		// Keep the message while asking, so no other worker gets it.
+		if err := c.msg.InProgress(); err != nil {
+			c.log.Warn("heartbeat", "err", err)
+		}
+	})
 	if err == nil && !store.IsFinal(job.GetState()) {
 		c.attempt = store.LastAttempt(job).GetNumber()
 	}
@@ -195,23 +208,33 @@ func (c *claim) lease(ctx context.Context, q queue, op store.LeaseOp, req *soakv
 	case soakv1.LeaseRefusal_LEASE_REFUSAL_NOT_HOLDER:
 		return nil, errNotOurs
 	default:
-		return nil, fmt.Errorf("lease %s of job %s refused: %s", op, c.id, reply.GetError())
+		return nil, fmt.Errorf("lease %s of job %s: %w: %s", op, c.id, errSchedulerTrouble, reply.GetError())
 	}
 }
 
-// end makes a finish or fail call, asking again while no scheduler
-// answers, for up to endRetryLimit.
+// end makes a finish or fail call, asking again for up to endRetryLimit
+// while no scheduler does it.
 func (c *claim) end(q queue, op store.LeaseOp, req *soakv1.LeaseRequest) (*soakv1.Job, error) {
-	giveUp := time.Now().Add(endRetryLimit)
+	return c.retry(q, op, req, endRetryLimit, func() {})
+}
+
+// retry makes a lease call, and again after a second, calling before
+// each repeat, while no scheduler answers or one cannot do the call, for
+// up to limit. A scheduler takes a repeat of a call already done for the
+// same token as done.
+func (c *claim) retry(q queue, op store.LeaseOp, req *soakv1.LeaseRequest, limit time.Duration, before func()) (*soakv1.Job, error) {
+	giveUp := time.Now().Add(limit)
 	for {
 		ctx, done := bookkeeping()
 		job, err := c.lease(ctx, q, op, req)
 		done()
-		if !errors.Is(err, store.ErrNoScheduler) || time.Now().After(giveUp) {
+		notDone := errors.Is(err, store.ErrNoScheduler) || errors.Is(err, errSchedulerTrouble)
+		if !notDone || time.Now().After(giveUp) {
 			return job, err
 		}
-		c.log.Warn("no scheduler to end the job; asking again", "op", op)
+		c.log.Warn("lease call not done; asking again", "op", op, "err", err)
 		time.Sleep(time.Second)
+		before()
 	}
 }
 

@@ -42,7 +42,9 @@ const (
 	workerInboxPrefix = "soak.inbox.worker."
 )
 
-// ErrNoScheduler: no scheduler answered a lease call in time.
+// ErrNoScheduler: no scheduler answered a lease call in time. The call
+// may have been done all the same, its reply lost; a repeated end call
+// then gets the record as the first left it.
 var ErrNoScheduler = errors.New("no scheduler answered")
 
 // WorkerInbox is the option every worker connection needs: it puts the
@@ -56,18 +58,17 @@ func WorkerInbox() nats.Option {
 }
 
 // Lease makes a lease call to a scheduler. Refusals come back in the
-// reply; ErrNoScheduler when none answered before ctx ended.
+// reply; ErrNoScheduler when no answer came before ctx ended.
 func (s *Store) Lease(ctx context.Context, op LeaseOp, req *soakv1.LeaseRequest) (*soakv1.LeaseReply, error) {
 	data, err := proto.Marshal(req)
 	if err != nil {
 		return nil, fmt.Errorf("encode lease %s of job %s: %w", op, req.GetJobId(), err)
 	}
 	msg, err := s.nc.RequestWithContext(ctx, leaseSubjectPrefix+string(op), data)
-	if errors.Is(err, nats.ErrNoResponders) || errors.Is(err, context.DeadlineExceeded) || errors.Is(err, nats.ErrTimeout) {
-		return nil, fmt.Errorf("lease %s of job %s: %w (%w)", op, req.GetJobId(), ErrNoScheduler, err)
-	}
 	if err != nil {
-		return nil, fmt.Errorf("lease %s of job %s: %w", op, req.GetJobId(), err)
+		// No responder, a timeout, NATS away: either way no answer, and
+		// the call may or may not have been done.
+		return nil, fmt.Errorf("lease %s of job %s: %w (%w)", op, req.GetJobId(), ErrNoScheduler, err)
 	}
 	reply := &soakv1.LeaseReply{}
 	if err := proto.Unmarshal(msg.Data, reply); err != nil {

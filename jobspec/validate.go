@@ -586,6 +586,9 @@ func (c *checker) probes(spec *soakv1.JobSpec) map[string]string {
 	for i, p := range spec.GetProbes() {
 		path := fmt.Sprintf("probes[%d]", i)
 		c.label(path+".name", p.GetName(), names)
+		if strings.ContainsAny(p.GetName(), ",\"") {
+			c.add(path+".name", strconv.Quote(p.GetName()), "must not hold commas or double quotes: it heads a column of probes.csv")
+		}
 		at := p.GetAtM()
 		if len(at) != 3 {
 			c.add(path+".at_m", strconv.Itoa(len(at))+" numbers", "must hold 3 coordinates (x, y, z), m")

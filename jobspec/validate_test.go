@@ -509,3 +509,21 @@ func TestRefineCountsTheFineGrid(t *testing.T) {
 		t.Fatalf("with refine: got %v, want the 80³ grid refused", err)
 	}
 }
+
+// A probe's name heads a column of probes.csv, so it may not carry the
+// CSV separator or quote (RFC 4180).
+func TestProbeNameFitsTheCSVHeader(t *testing.T) {
+	t.Parallel()
+	spec, err := jobspec.Load(filepath.Join("..", "testdata", "specs", "bead-tray-quench.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, name := range []string{"core,left", `core "A"`} {
+		spec.Probes[0].Name = name
+		spec.Milestones[0].Probe = name
+		err := jobspec.Validate(spec, jobspec.DefaultLimits())
+		if err == nil || !strings.Contains(err.Error(), "probes[0].name") || !strings.Contains(err.Error(), "probes.csv") {
+			t.Errorf("probe named %q: got %v, want a problem at probes[0].name", name, err)
+		}
+	}
+}

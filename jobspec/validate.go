@@ -17,14 +17,6 @@ import (
 // spec must lie above it.
 const AbsoluteZeroC = -273.15
 
-// BytesPerCell is the memory estimate per cell of the grid box (part cells
-// and the empty cells around them alike). It covers the solver's ~10
-// float64 arrays per cell (temperatures now and before, conductivity and
-// heat capacity, matrix diagonals, right-hand side and iteration vectors:
-// 80 bytes) plus the region mask and the boundary-face records, with room
-// to spare.
-const BytesPerCell = 120
-
 // Bounds of cells_across: below the minimum a part is a few blocks and the
 // result meaningless; the maximum only guards against typing slips, since
 // the memory limit binds well before it on any solid shape.
@@ -38,7 +30,7 @@ const maxTextLen = 200
 
 // Limits are the resources a job may ask for. A zero field means no limit.
 type Limits struct {
-	// MaxMemoryBytes bounds the grid's memory estimate, cells × BytesPerCell.
+	// MaxMemoryBytes bounds the grid's memory estimate (mesh.EstimateBytes).
 	MaxMemoryBytes int64
 	// MaxCells bounds the number of cells of the grid box.
 	MaxCells int64
@@ -404,7 +396,13 @@ func (c *checker) grid(spec *soakv1.JobSpec, lim Limits) {
 	if lim.MaxCells > 0 && cells > float64(lim.MaxCells) {
 		c.add(field, "", fmt.Sprintf("%s, over the limit of %s cells; %s", grid, countText(float64(lim.MaxCells)), coarsen))
 	}
-	if bytes := cells * BytesPerCell; lim.MaxMemoryBytes > 0 && bytes > float64(lim.MaxMemoryBytes) {
+	// The mesh's own estimate (grid and solver arrays); past what an int64
+	// holds the grid is hopeless anyway, so the plain product stands in.
+	bytes := cells * 1e3
+	if cells < 1<<40 {
+		bytes = float64(mesh.EstimateBytes([3]int{int(n[0]), int(n[1]), int(n[2])}))
+	}
+	if lim.MaxMemoryBytes > 0 && bytes > float64(lim.MaxMemoryBytes) {
 		c.add(field, "", fmt.Sprintf("%s needing about %s, over the %s memory limit; %s or raise the limit with the --max-memory flag of soak run",
 			grid, bytesText(bytes), bytesText(float64(lim.MaxMemoryBytes)), coarsen))
 	}

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"soakfarm/jobspec"
+	"soakfarm/mesh"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -339,14 +340,15 @@ func TestValidateGridLimits(t *testing.T) {
 		part  *soakv1.Part
 		cells int64 // of the grid box at 4 cells across
 		grid  string
+		dims  [3]int
 	}{
 		// 100 × 50 × 20 mm, 4 cells on the 20 mm side: 5 mm cells,
 		// 20 × 10 × 4 = 800.
-		{"box", box(0.1, 0.05, 0.02), 800, "20 × 10 × 4 = 800 cells"},
+		{"box", box(0.1, 0.05, 0.02), 800, "20 × 10 × 4 = 800 cells", [3]int{20, 10, 4}},
 		// D 40 mm, L 100 mm along x: 10 mm cells, 10 × 4 × 4 = 160.
-		{"cylinder", cylinder(0.04, 0.1, "x"), 160, "10 × 4 × 4 = 160 cells"},
+		{"cylinder", cylinder(0.04, 0.1, "x"), 160, "10 × 4 × 4 = 160 cells", [3]int{10, 4, 4}},
 		// D 20 mm: 5 mm cells, 4 × 4 × 4 = 64.
-		{"sphere", nil, 64, "4 × 4 × 4 = 64 cells"},
+		{"sphere", nil, 64, "4 × 4 × 4 = 64 cells", [3]int{4, 4, 4}},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -357,7 +359,7 @@ func TestValidateGridLimits(t *testing.T) {
 			if tc.part != nil {
 				spec.Part = tc.part
 			}
-			bytes := tc.cells * jobspec.BytesPerCell
+			bytes := mesh.EstimateBytes(tc.dims)
 			for _, lim := range []jobspec.Limits{
 				{MaxCells: tc.cells},
 				{MaxMemoryBytes: bytes},
@@ -386,9 +388,10 @@ func TestValidateMemoryMessage(t *testing.T) {
 	t.Parallel()
 	spec := beadSpec(t)
 	spec.CellsAcross = new(uint32(1000))
-	// 1000³ cells × 120 B = 1.2e11 B = 111.76 GiB (worked by hand).
+	// 1000³ cells × 121 B plus 8·3e6 faces × 64 B = 1.22536e11 B = 114.12 GiB
+	// (worked by hand from mesh.EstimateBytes's stated sizes).
 	got := problems(t, spec, jobspec.Limits{MaxMemoryBytes: 4 << 30})
-	want := "cells_across: cells_across 1000 makes a grid of 1000 × 1000 × 1000 = 1000 M cells needing about 111.8 GiB, over the 4.0 GiB memory limit; " +
+	want := "cells_across: cells_across 1000 makes a grid of 1000 × 1000 × 1000 = 1000 M cells needing about 114.1 GiB, over the 4.0 GiB memory limit; " +
 		"coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run"
 	if len(got) != 1 || got[0].String() != want {
 		t.Errorf("got %v\nwant %s", got, want)
@@ -443,10 +446,11 @@ func TestValidateBadSpecFiles(t *testing.T) {
 	}{
 		{"bad-emissivity-above-one.yaml", []string{"exposure[1].emissivity: must be in [0, 1], got 1.4"}},
 		{"bad-probe-outside-part.yaml", []string{"probes[1].at_m: must lie in the part (centred on the origin) or within half a cell, 0.005 m, of it, got (0.05, 0.1, 0.05)"}},
-		// 2 m / 0.1 mm = 20000, 20 mm / 0.1 mm = 200: 8e8 cells, 9.6e10 B = 89.4 GiB.
+		// 2 m / 0.1 mm = 20000, 20 mm / 0.1 mm = 200: 8e8 cells × 121 B plus
+		// 8·(20000·200·2 + 200·200) faces × 64 B = 1.00916e11 B = 93.99 GiB.
 		{"bad-grid-too-fine.yaml", []string{
 			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells, over the limit of 64 M cells; coarsen the grid (fewer cells_across or a larger cell_size_m)",
-			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells needing about 89.4 GiB, over the 4.0 GiB memory limit; coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run",
+			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells needing about 94.0 GiB, over the 4.0 GiB memory limit; coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run",
 		}},
 	}
 	for _, tc := range cases {

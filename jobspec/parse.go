@@ -77,7 +77,7 @@ func Load(path string) (*soakv1.JobSpec, error) {
 // does not check the values themselves (see Validate).
 func Parse(data []byte, format string) (*soakv1.JobSpec, error) {
 	if len(data) > MaxSpecBytes {
-		return nil, fmt.Errorf("%w: more than the %d MiB limit", ErrSpecTooLarge, MaxSpecBytes>>20)
+		return nil, fmt.Errorf("%w: more than the %d MiB limit, which is fixed; real specs are a few kilobytes, so keep large data out of the spec (an STL mesh goes in its own file named by stl.file)", ErrSpecTooLarge, MaxSpecBytes>>20)
 	}
 	if format == "" {
 		format = "yaml"

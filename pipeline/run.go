@@ -115,7 +115,7 @@ func Build(ctx context.Context, spec *soakv1.JobSpec, opt Options) (*Model, erro
 	m.teq, m.hasEq = equilibrium(g, ex, initial)
 	for r, v := range partVolumes(g, len(ps.materials)) {
 		mat := ps.materials[r]
-		m.qMax += v * mat.Density * curveIntegral(mat.SpecificHeat, initial, m.teq)
+		m.qMax += v * mat.Density * mat.SpecificHeat.Integral(initial, m.teq)
 	}
 	return m, nil
 }

@@ -100,26 +100,6 @@ func equilibrium(g *mesh.Grid, ex []solver.Exposure, initial float64) (teq float
 	return sumWT / sumW, true
 }
 
-// curveIntegral returns ∫ c dT from a to b (exact for the piecewise-linear curve).
-func curveIntegral(c solver.Curve, a, b float64) float64 {
-	if a > b {
-		return -curveIntegral(c, b, a)
-	}
-	// Break points inside (a, b) plus the ends; the curve is linear between.
-	pts := []float64{a}
-	for _, t := range c.T {
-		if t > a && t < b {
-			pts = append(pts, t)
-		}
-	}
-	pts = append(pts, b)
-	sum := 0.0
-	for i := 1; i < len(pts); i++ {
-		sum += (pts[i] - pts[i-1]) * (c.At(pts[i]) + c.At(pts[i-1])) / 2
-	}
-	return sum
-}
-
 func finiteOr(v, fallback float64) float64 {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return fallback

@@ -61,3 +61,10 @@ func (e *enthalpy) fromStart(t float64) float64 {
 
 // At returns the enthalpy at t relative to the reference temperature, J/kg.
 func (e *enthalpy) At(t float64) float64 { return e.fromStart(t) - e.ref }
+
+// Integral returns ∫ c dT from a to b (K), exact for the piecewise-linear
+// curve: for a specific heat, the enthalpy change per kilogram.
+func (c Curve) Integral(a, b float64) float64 {
+	e := newEnthalpy(c, a)
+	return e.fromStart(b) - e.ref
+}

@@ -143,12 +143,12 @@ type jacobiCG struct {
 	startTask, productTask, updateTask, directionTask func(int)
 }
 
-func newJacobiCG(ws *workers, slabs [][]span, size int) *jacobiCG {
+func newJacobiCG(ws *workers, slabs [][]span, size int, mem *arrays) *jacobiCG {
 	cells := partCells(slabs)
 	s := &jacobiCG{
 		ws: ws, slabs: slabs, cells: cells,
-		r: make([]float64, cells), p: make([]float64, size), q: make([]float64, cells),
-		invDiag: make([]float64, cells),
+		r: grow[float64](mem, cells), p: grow[float64](mem, size), q: grow[float64](mem, cells),
+		invDiag: grow[float64](mem, cells),
 		sums:    make([]partial, ws.count()),
 	}
 	s.startTask = s.start

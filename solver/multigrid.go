@@ -79,20 +79,20 @@ type mgLevel struct {
 
 // newLevel makes a level of n cells whose part cells part tells; a level
 // built from a stencil (the finest) shares its conductances.
-func newLevel(n [3]int, part []bool, threads int, a *stencil) *mgLevel {
+func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays) *mgLevel {
 	nxy := n[0] * n[1]
 	size := n[0]*n[1]*n[2] + 2*nxy
 	l := &mgLevel{
 		n: n, nx: n[0], nxy: nxy,
 		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
-		x:     make([]float32, size), xNext: make([]float32, size), d: make([]float32, size),
+		x:     grow[float32](mem, size), xNext: grow[float32](mem, size), d: grow[float32](mem, size),
 	}
 	l.cells = partCells(l.slabs)
-	l.inv, l.b = make([]float32, l.cells), make([]float32, l.cells)
+	l.inv, l.b = grow[float32](mem, l.cells), grow[float32](mem, l.cells)
 	if a != nil {
 		l.gx, l.gy, l.gz = a.gx, a.gy, a.gz
 	} else {
-		l.gx, l.gy, l.gz = make([]float32, size), make([]float32, size), make([]float32, size)
+		l.gx, l.gy, l.gz = grow[float32](mem, size), grow[float32](mem, size), grow[float32](mem, size)
 		l.ownsConductances = true
 	}
 	l.lmax = make([]partial, len(l.slabs))
@@ -116,10 +116,10 @@ type multigrid struct {
 	moved       float64 // bytes moved so far, by the traffic model below
 }
 
-func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool) *multigrid {
+func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays) *multigrid {
 	mg := &multigrid{ws: ws}
 	threads := ws.count()
-	l := newLevel(dims, part, threads, a)
+	l := newLevel(dims, part, threads, a, mem)
 	mg.levels = append(mg.levels, l)
 	for l.cells > maxCoarseCells && (l.n[0] > 1 || l.n[1] > 1 || l.n[2] > 1) {
 		var cn [3]int
@@ -140,9 +140,9 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool) *multigrid 
 				}
 			}
 		}
-		c := newLevel(cn, coarse, threads, nil)
+		c := newLevel(cn, coarse, threads, nil, mem)
 		l.next = c
-		l.scale = make([]float32, l.cells)
+		l.scale = grow[float32](mem, l.cells)
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
 		l, part = c, coarse

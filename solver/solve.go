@@ -141,11 +141,12 @@ func newRun(p *Problem) *run {
 	g := p.Grid
 	nx, nxy := g.N[0], g.N[0]*g.N[1]
 	size := g.CellCount() + 2*nxy
+	mem := &arrays{}
 	r := &run{
 		p: p, g: g, pad: nxy, stepping: p.Stepping,
 		st: stencil{nx: nx, nxy: nxy,
-			gx: make([]float32, size), gy: make([]float32, size), gz: make([]float32, size)},
-		t:        make([]float64, size),
+			gx: grow[float32](mem, size), gy: grow[float32](mem, size), gz: grow[float32](mem, size)},
+		t:        grow[float64](mem, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
 	}
@@ -172,7 +173,7 @@ func newRun(p *Problem) *run {
 		}
 	}
 	if !r.constantK {
-		r.k = make([]float64, size)
+		r.k = grow[float64](mem, size)
 	}
 	drive := 1.0 // K, floor for a problem with no driving difference
 	for _, e := range p.Exposures {
@@ -198,8 +199,8 @@ func newRun(p *Problem) *run {
 	}
 	r.slabs = partition(g, r.pad, threads)
 	cells := partCells(r.slabs)
-	r.b, r.st.diag = make([]float64, cells), make([]float64, cells)
-	r.tn, r.tnm1, r.tstar = make([]float64, cells), make([]float64, cells), make([]float64, cells)
+	r.b, r.st.diag = grow[float64](mem, cells), grow[float64](mem, cells)
+	r.tn, r.tnm1, r.tstar = grow[float64](mem, cells), grow[float64](mem, cells), grow[float64](mem, cells)
 	all := slices.Concat(r.slabs...)
 	r.facePart = make([]int32, len(g.Faces))
 	for i, f := range g.Faces {
@@ -207,9 +208,9 @@ func newRun(p *Problem) *run {
 	}
 	r.ws = newWorkers(len(r.slabs))
 	if p.Stepping.Preconditioner == Jacobi {
-		r.lin = newJacobiCG(r.ws, r.slabs, size)
+		r.lin = newJacobiCG(r.ws, r.slabs, size, mem)
 	} else {
-		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, size)
+		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, size, mem)
 	}
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances

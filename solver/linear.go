@@ -44,6 +44,9 @@ type stencil struct {
 	nx, nxy    int
 	diag       []float64
 	gx, gy, gz []float32
+	// vector tells the passes over this operator and its multigrid to use
+	// the AVX2 kernels where the CPU has them.
+	vector bool
 }
 
 // times returns (A·x)_c for the part cell c whose part index is i.
@@ -262,7 +265,12 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 		qc := q[sp.at : sp.at+n]
 		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]
 		diag, gx, gxw, gy, gys, gz, gzd, qc = diag[:len(pc)], gx[:len(pc)], gxw[:len(pc)], gy[:len(pc)], gys[:len(pc)], gz[:len(pc)], gzd[:len(pc)], qc[:len(pc)]
-		for i := range pc {
+		i := 0
+		if a.vector && n >= 4 {
+			i = n &^ 3
+			pq += productAVX(i, nx, nxy, &pc[0], &gx[0], &gy[0], &gz[0], &diag[0], &qc[0])
+		}
+		for ; i < len(pc); i++ {
 			ap := diag[i]*pc[i] - float64(gx[i])*pe[i] - float64(gxw[i])*pw[i] -
 				float64(gy[i])*pn[i] - float64(gys[i])*ps[i] -
 				float64(gz[i])*pu[i] - float64(gzd[i])*pd[i]

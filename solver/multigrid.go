@@ -48,6 +48,7 @@ type mgLevel struct {
 	nx, nxy int
 	factor  [3]int // coarsening factor towards the next level, 1 or 2
 	slabs   [][]span
+	planes  [][][]span // each slab's spans by z-plane, for the wavefronts
 	cells   int
 	next    *mgLevel // coarser level; nil on the coarsest
 
@@ -55,35 +56,44 @@ type mgLevel struct {
 	// are the finest level's stencil's own arrays (ownsConductances false).
 	inv, gx, gy, gz  []float32
 	ownsConductances bool
+	// vector tells the passes to use the AVX2 kernels (the rest of each
+	// span, and every span on other CPUs, takes the portable loop).
+	vector bool
 	// b is the right-hand side, x the solution and xNext the other half of
-	// its ping-pong pair. d is the Chebyshev direction, then the scaled
+	// its ping-pong pair (the odd smoothing steps write it, the even ones
+	// x, so a cycle leaves its result in x). d is the Chebyshev direction, then the scaled
 	// residual handed to the coarser level; during set-up it holds the
 	// cells' own terms (the diagonal without the face conductances).
 	b, x, xNext, d []float32
 	// scale is 1 / (sum of the interpolation weights of the coarse cells
 	// in the part), per cell; nil on the coarsest level.
 	scale []float32
+	// coarseRow (per slab of this level) and fineRow (per slab of the
+	// next) are the blended rows of prolong and restrict, two cells longer
+	// than a row of the level they blend, their ends 0.
+	coarseRow, fineRow [][]float32
 	// inv, b and scale hold the part cells only (span.at): no neighbour
 	// reads them. The others span the padded box.
 
 	// Chebyshev coefficients for this set-up: step s updates
 	// d ← cd[s]·d + cr[s]·D⁻¹(b − A·x).
 	cd, cr [smoothDegree]float32
-	// operands of the running task
-	step     int
-	fromZero bool
-	lmax     []partial
+	lmax   []partial
+	// pre smooths from x = 0 and leaves the scaled residual in d; post
+	// adds the coarse correction and smooths again: each one sweep of
+	// memory (see wavefront).
+	pre, post *wavefront
 
-	smoothTask, residualTask, prolongTask, restrictTask, coarsenTask, diagonalTask func(int)
+	prolongTask, restrictTask, coarsenTask, diagonalTask func(int)
 }
 
 // newLevel makes a level of n cells whose part cells part tells; a level
 // built from a stencil (the finest) shares its conductances.
-func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays) *mgLevel {
+func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays, vector bool) *mgLevel {
 	nxy := n[0] * n[1]
 	size := n[0]*n[1]*n[2] + 2*nxy
 	l := &mgLevel{
-		n: n, nx: n[0], nxy: nxy,
+		n: n, nx: n[0], nxy: nxy, vector: vector,
 		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
 		x:     grow[float32](mem, size), xNext: grow[float32](mem, size), d: grow[float32](mem, size),
 	}
@@ -96,9 +106,23 @@ func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays) *mgLe
 		l.ownsConductances = true
 	}
 	l.lmax = make([]partial, len(l.slabs))
-	l.smoothTask = l.smooth
-	l.residualTask = l.residual
-	l.prolongTask = l.prolong
+	l.planes = planesOf(l.slabs)
+	// Chebyshev steps alternate between x and xNext; smoothDegree is even,
+	// so the last one writes x.
+	pre := []stage{{kind: stageFromZero, dst: l.xNext}}
+	post := []stage{{kind: stageProlong}}
+	src, dst := l.x, l.xNext
+	for s := range smoothDegree {
+		step := stage{kind: stageSmooth, step: s, src: src, dst: dst}
+		if s > 0 {
+			pre = append(pre, step)
+		}
+		post = append(post, step)
+		src, dst = dst, src
+	}
+	l.pre = newWavefront(l, append(pre, stage{kind: stageResidual, src: l.x}))
+	l.post = newWavefront(l, post)
+	l.prolongTask = func(w int) { l.prolong(w, l.slabs[w]) }
 	l.restrictTask = l.restrict
 	l.coarsenTask = l.coarsen
 	l.diagonalTask = l.diagonal
@@ -117,9 +141,10 @@ type multigrid struct {
 }
 
 func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays) *multigrid {
+	vector := a.vector
 	mg := &multigrid{ws: ws}
 	threads := ws.count()
-	l := newLevel(dims, part, threads, a, mem)
+	l := newLevel(dims, part, threads, a, mem, vector)
 	mg.levels = append(mg.levels, l)
 	for l.cells > maxCoarseCells && (l.n[0] > 1 || l.n[1] > 1 || l.n[2] > 1) {
 		var cn [3]int
@@ -140,9 +165,15 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays
 				}
 			}
 		}
-		c := newLevel(cn, coarse, threads, nil, mem)
+		c := newLevel(cn, coarse, threads, nil, mem, vector)
 		l.next = c
 		l.scale = grow[float32](mem, l.cells)
+		for range l.slabs {
+			l.coarseRow = append(l.coarseRow, make([]float32, cn[0]+2))
+		}
+		for range c.slabs {
+			l.fineRow = append(l.fineRow, make([]float32, l.n[0]+3))
+		}
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
 		l, part = c, coarse
@@ -210,16 +241,19 @@ func (mg *multigrid) memory() int {
 }
 
 // Bytes per part cell each pass reads and writes (float32 = 4 bytes): the
-// model behind the bandwidth figures of `soak bench`.
+// model behind the bandwidth figures of `soak bench`. A wavefront reads
+// each array once whatever its number of stages, since a plane's
+// neighbours and a later stage's inputs are still in cache.
 const (
-	bytesSmooth     = 4*4 + 4 + 4 + 2*4 + 4 // stencil, x, b, d read and written, x'
-	bytesSmoothZero = 4 + 4 + 4 + 4         // b, inv, d, x'
-	bytesResidual   = 4*4 + 4 + 4 + 4 + 4   // stencil, x, b, scale, r
-	bytesRestrict   = 4                     // fine r read once (neighbours hit the cache)
-	bytesProlong    = 4 + 2*4               // scale, x read and written
-	bytesFromFine   = bytesStencil + 2*4    // stencil in, inverse diagonal and own terms out
-	bytesCoarsen    = 4 * 4                 // fine own terms and conductances, read once
-	bytesDiagonal   = 5 * 4                 // own terms and conductances in, inverse diagonal out
+	// pre: the stencil (inverse diagonal, three conductances), b and
+	// scale in; d, x and x' out
+	bytesPre = 4*4 + 4 + 4 + 3*4
+	// post: scale, the stencil and b in; x and d read and written, x' out
+	bytesPost     = 4 + 4*4 + 4 + 2*4 + 2*4 + 4
+	bytesRestrict = 4                  // fine r read once (neighbours hit the cache)
+	bytesFromFine = bytesStencil + 2*4 // stencil in, inverse diagonal and own terms out
+	bytesCoarsen  = 4 * 4              // fine own terms and conductances, read once
+	bytesDiagonal = 5 * 4              // own terms and conductances in, inverse diagonal out
 )
 
 // setup builds every level's operator from the fine stencil a.
@@ -266,27 +300,25 @@ func (mg *multigrid) cycle(l *mgLevel) {
 		return
 	}
 	cells := float64(l.cells)
-	mg.smooth(l, true)
-	mg.run(l, l.residualTask)
+	mg.runWavefront(l.pre)
 	mg.run(l.next, l.restrictTask)
-	mg.moved += (bytesResidual + bytesRestrict) * cells
+	mg.moved += (bytesPre + bytesRestrict) * cells
 	mg.cycle(l.next)
-	mg.run(l, l.prolongTask)
-	mg.moved += bytesProlong * cells
-	mg.smooth(l, false)
+	mg.runWavefront(l.post)
+	mg.moved += bytesPost * cells
 }
 
-// smooth runs the Chebyshev steps on l, from x = 0 when fromZero.
-func (mg *multigrid) smooth(l *mgLevel, fromZero bool) {
-	for s := range smoothDegree {
-		l.step, l.fromZero = s, fromZero && s == 0
-		mg.run(l, l.smoothTask)
-		l.x, l.xNext = l.xNext, l.x
-		if l.fromZero {
-			mg.moved += bytesSmoothZero * float64(l.cells)
-		} else {
-			mg.moved += bytesSmooth * float64(l.cells)
-		}
+// runStage runs one wavefront stage on the spans of one plane of slab w.
+func (l *mgLevel) runStage(w int, st *stage, spans []span) {
+	switch st.kind {
+	case stageFromZero:
+		l.smoothFromZero(spans, st.dst)
+	case stageSmooth:
+		l.smooth(spans, st.step, st.src, st.dst)
+	case stageResidual:
+		l.residual(spans, st.src)
+	case stageProlong:
+		l.prolong(w, spans)
 	}
 }
 
@@ -301,9 +333,9 @@ type rows struct {
 
 func win(v []float32, at, n int) []float32 { return v[at : at+n : at+n] }
 
-func (l *mgLevel) rows(sp span) rows {
+// rows returns the views of span sp with x as the values.
+func (l *mgLevel) rows(sp span, x []float32) rows {
 	lo, n, nx, nxy := sp.lo, sp.hi-sp.lo, l.nx, l.nxy
-	x := l.x
 	return rows{
 		x: win(x, lo, n), xw: win(x, lo-1, n), xe: win(x, lo+1, n), xs: win(x, lo-nx, n), xn: win(x, lo+nx, n),
 		xd: win(x, lo-nxy, n), xu: win(x, lo+nxy, n),
@@ -312,27 +344,39 @@ func (l *mgLevel) rows(sp span) rows {
 	}
 }
 
-// smooth runs Chebyshev step l.step on slab w: d ← cd·d + cr·D⁻¹(b − A·x),
-// x' = x + d.
-func (l *mgLevel) smooth(w int) {
-	cd, cr := l.cd[l.step], l.cr[l.step]
-	for _, sp := range l.slabs[w] {
+// smoothFromZero runs the first Chebyshev step from x = 0 on spans:
+// d = cr·D⁻¹b, dst = d.
+func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
+	cr := l.cr[0]
+	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
-		d, next := win(l.d, sp.lo, n)[:len(b)], win(l.xNext, sp.lo, n)[:len(b)]
-		if l.fromZero {
-			inv := win(l.inv, sp.at, n)[:len(b)]
-			for i := range b {
-				v := cr * b[i] * inv[i]
-				d[i], next[i] = v, v
-			}
-			continue
+		inv, d, next := win(l.inv, sp.at, n)[:len(b)], win(l.d, sp.lo, n)[:len(b)], win(dst, sp.lo, n)[:len(b)]
+		for i := range b {
+			v := cr * b[i] * inv[i]
+			d[i], next[i] = v, v
 		}
-		a := l.rows(sp)
+	}
+}
+
+// smooth runs Chebyshev step `step` on spans: d ← cd·d + cr·D⁻¹(b − A·x),
+// dst = x + d, with x = src.
+func (l *mgLevel) smooth(spans []span, step int, src, dst []float32) {
+	cd, cr := l.cd[step], l.cr[step]
+	for _, sp := range spans {
+		n := sp.hi - sp.lo
+		b := win(l.b, sp.at, n)
+		d, next := win(l.d, sp.lo, n)[:len(b)], win(dst, sp.lo, n)[:len(b)]
+		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
 		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
-		for i := range b {
+		i := 0
+		if l.vector && n >= 8 {
+			i = n &^ 7
+			chebyshevAVX(i, l.nx, l.nxy, &x[0], &gx[0], &gy[0], &gz[0], &inv[0], &b[0], &d[0], &next[0], cr, cd)
+		}
+		for ; i < len(b); i++ {
 			// D⁻¹(b − A·x) = D⁻¹(b + Σ g·x_nb) − x
 			in := b[i] + gx[i]*xe[i] + gxw[i]*xw[i] + gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
 			v := cr*(in*inv[i]-x[i]) + cd*d[i]
@@ -341,18 +385,23 @@ func (l *mgLevel) smooth(w int) {
 	}
 }
 
-// residual sets d = scale·(b − A·x) on slab w: the residual as restriction
-// takes it.
-func (l *mgLevel) residual(w int) {
-	for _, sp := range l.slabs[w] {
+// residual sets d = scale·(b − A·x) on spans, with x = src: the residual
+// as restriction takes it.
+func (l *mgLevel) residual(spans []span, src []float32) {
+	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
-		a := l.rows(sp)
+		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
 		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
-		for i := range b {
+		i := 0
+		if l.vector && n >= 8 {
+			i = n &^ 7
+			residualAVX(i, l.nx, l.nxy, &x[0], &gx[0], &gy[0], &gz[0], &inv[0], &b[0], &scale[0], &d[0])
+		}
+		for ; i < len(b); i++ {
 			r := b[i] - x[i]/inv[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
 				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
 			d[i] = scale[i] * r
@@ -379,23 +428,48 @@ func interpolation(i, factor, coarseN int) (i0, i1 int, w0, w1 float32) {
 	return i0, i1, 0.75, 0.25
 }
 
-// prolong adds scale·P·(coarse x) to x on the fine slab w.
-func (l *mgLevel) prolong(w int) {
+// prolong adds scale·P·(coarse x) to x on spans of the fine slab w. For each fine
+// span it first blends the up to four coarse rows it draws on (weights
+// along y and z) into one row, zero at both ends, then interpolates along
+// x: 3/4 of the parent and 1/4 of the parent's neighbour on the child's
+// side, which the zero ends drop at the box's ends.
+func (l *mgLevel) prolong(w int, spans []span) {
 	c := l.next
 	f := l.factor
 	x, scale, cx := l.x, l.scale, c.x
-	for _, sp := range l.slabs[w] {
+	row := l.coarseRow[w] // row[I+1] is coarse cell I; row[0] and the end stay 0
+	for _, sp := range spans {
 		y0, y1, wy0, wy1 := interpolation(sp.y, f[1], c.n[1])
 		z0, z1, wz0, wz1 := interpolation(sp.z, f[2], c.n[2])
 		base := c.nxy // padding
 		r00, r01 := base+c.nx*(y0+c.n[1]*z0), base+c.nx*(y0+c.n[1]*z1)
 		r10, r11 := base+c.nx*(y1+c.n[1]*z0), base+c.nx*(y1+c.n[1]*z1)
 		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
-		for i, at := sp.lo, sp.at; i < sp.hi; i, at = i+1, at+1 {
-			x0, x1, wx0, wx1 := interpolation(i-sp.rowStart, f[0], c.n[0])
-			v := w00*(wx0*cx[r00+x0]+wx1*cx[r00+x1]) + w01*(wx0*cx[r01+x0]+wx1*cx[r01+x1]) +
-				w10*(wx0*cx[r10+x0]+wx1*cx[r10+x1]) + w11*(wx0*cx[r11+x0]+wx1*cx[r11+x1])
-			x[i] += scale[at] * v
+		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
+		lo, hi := max(0, first/f[0]-1), min(c.n[0], last/f[0]+2)
+		b, a00, a01, a10, a11 := row[lo+1:hi+1], cx[r00+lo:r00+hi], cx[r01+lo:r01+hi], cx[r10+lo:r10+hi], cx[r11+lo:r11+hi]
+		a00, a01, a10, a11 = a00[:len(b)], a01[:len(b)], a10[:len(b)], a11[:len(b)]
+		for I := range b {
+			b[I] = w00*a00[I] + w01*a01[I] + w10*a10[I] + w11*a11[I]
+		}
+		xs, sc := x[sp.lo:sp.hi], scale[sp.at:sp.at+sp.hi-sp.lo]
+		sc = sc[:len(xs)]
+		if f[0] == 1 {
+			r := row[first+1 : last+2]
+			r = r[:len(xs)]
+			for i := range xs {
+				xs[i] += sc[i] * r[i]
+			}
+			continue
+		}
+		for i := range xs {
+			ii := first + i
+			I := ii >> 1
+			side := I // the parent's neighbour on the child's side, in row's indices
+			if ii&1 == 1 {
+				side = I + 2
+			}
+			xs[i] += sc[i] * (0.75*row[I+1] + 0.25*row[side])
 		}
 	}
 }
@@ -420,14 +494,17 @@ func restriction(I, factor, fineN int) (idx [4]int, wt [4]float32, n int) {
 }
 
 // restrict sets the coarse right-hand side b = Pᵀ·(scaled fine residual)
-// on coarse slab w.
+// on coarse slab w. For each coarse span it first blends the up to 16
+// fine rows that feed it (weights along y and z) into one row, zero at
+// both ends, then gathers along x with the weights 1/4, 3/4, 3/4, 1/4.
+// The fine residual is 0 outside the part, so a blended row may run over
+// cells outside it.
 func (l *mgLevel) restrict(w int) {
 	c := l.next
 	f := l.factor
 	d := l.d
+	row := l.fineRow[w] // row[i+1] is fine cell i; row[0] and the end stay 0
 	for _, sp := range c.slabs[w] {
-		// The up to 16 fine rows that feed this coarse row, with their
-		// weights along y and z.
 		ys, wys, ny := restriction(sp.y, f[1], l.n[1])
 		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
 		var rowAt [16]int
@@ -439,26 +516,30 @@ func (l *mgLevel) restrict(w int) {
 				m++
 			}
 		}
-		for I := sp.lo; I < sp.hi; I++ {
-			ci := I - sp.rowStart
-			var sum float32
-			if x0 := 2*ci - 1; f[0] == 2 && x0 >= 0 && x0+3 < l.n[0] {
-				// away from the box's ends: all four taps
-				for r := range m {
-					t := d[rowAt[r]+x0 : rowAt[r]+x0+4 : rowAt[r]+x0+4]
-					sum += rowWeight[r] * (0.25*(t[0]+t[3]) + 0.75*(t[1]+t[2]))
-				}
-			} else {
-				xs, wxs, nxs := restriction(ci, f[0], l.n[0])
-				for r := range m {
-					var s float32
-					for e := range nxs {
-						s += wxs[e] * d[rowAt[r]+xs[e]]
-					}
-					sum += rowWeight[r] * s
-				}
+		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
+		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
+		b := row[lo+1 : hi+1]
+		src := d[rowAt[0]+lo : rowAt[0]+hi]
+		src = src[:len(b)]
+		for i := range b {
+			b[i] = rowWeight[0] * src[i]
+		}
+		for r := 1; r < m; r++ {
+			src, wr := d[rowAt[r]+lo:rowAt[r]+hi], rowWeight[r]
+			src = src[:len(b)]
+			for i := range b {
+				b[i] += wr * src[i]
 			}
-			c.b[sp.at+I-sp.lo] = sum
+		}
+		out := c.b[sp.at : sp.at+sp.hi-sp.lo]
+		if f[0] == 1 {
+			copy(out, row[first+1:last+2])
+			continue
+		}
+		for I := range out {
+			at := 2 * (first + I) // row index of fine cell 2I−1
+			t := row[at : at+4 : at+4]
+			out[I] = 0.25*(t[0]+t[3]) + 0.75*(t[1]+t[2])
 		}
 	}
 }

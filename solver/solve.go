@@ -137,14 +137,18 @@ type run struct {
 	conductancesSet bool
 }
 
-func newRun(p *Problem) *run {
+func newRun(p *Problem) *run { return newRunOn(p, haveVector()) }
+
+// newRunOn is newRun with the vector kernels on or off (off: the portable
+// loops the kernels are checked against).
+func newRunOn(p *Problem, vector bool) *run {
 	g := p.Grid
 	nx, nxy := g.N[0], g.N[0]*g.N[1]
 	size := g.CellCount() + 2*nxy
 	mem := &arrays{}
 	r := &run{
 		p: p, g: g, pad: nxy, stepping: p.Stepping,
-		st: stencil{nx: nx, nxy: nxy,
+		st: stencil{nx: nx, nxy: nxy, vector: vector,
 			gx: grow[float32](mem, size), gy: grow[float32](mem, size), gz: grow[float32](mem, size)},
 		t:        grow[float64](mem, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),

@@ -1,0 +1,17 @@
+package solver
+
+import "golang.org/x/sys/cpu"
+
+// haveVector tells whether this CPU runs the AVX2 stencil kernels.
+func haveVector() bool { return cpu.X86.HasAVX2 && cpu.X86.HasFMA }
+
+// The kernels of kernels_amd64.s; see there for what they expect.
+
+//go:noescape
+func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+
+//go:noescape
+func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
+
+//go:noescape
+func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)

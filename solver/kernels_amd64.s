@@ -1,0 +1,143 @@
+#include "textflag.h"
+
+// Stencil kernels in AVX2 with FMA, eight float32 or four float64 cells
+// at a time. The caller passes n, a multiple of 8 (float32) or 4
+// (float64), and pointers to the first cell of a span, whose windows it
+// has checked: the kernels read the cells' neighbours at ±1, ±nx and
+// ±nxy. Registers: AX is the cell index i; BX, DX, R8 and R15 are i−nx,
+// i+nx, i+nxy and i−nxy.
+
+#define NEIGHBOUR_INDICES \
+	MOVQ nx+8(FP), DX; \
+	MOVQ nxy+16(FP), R8; \
+	XORQ AX, AX; \
+	XORQ BX, BX; \
+	SUBQ DX, BX; \
+	XORQ R15, R15; \
+	SUBQ R8, R15
+
+#define STEP_INDICES(k) \
+	ADDQ $k, AX; \
+	ADDQ $k, BX; \
+	ADDQ $k, DX; \
+	ADDQ $k, R8; \
+	ADDQ $k, R15
+
+// SUM_NEIGHBOURS32 adds Σ g·x over the six neighbours to Y0.
+#define SUM_NEIGHBOURS32 \
+	VMOVUPS (DI)(AX*4), Y1; \
+	VFMADD231PS 4(SI)(AX*4), Y1, Y0; \
+	VMOVUPS -4(DI)(AX*4), Y2; \
+	VFMADD231PS -4(SI)(AX*4), Y2, Y0; \
+	VMOVUPS (R9)(AX*4), Y3; \
+	VFMADD231PS (SI)(DX*4), Y3, Y0; \
+	VMOVUPS (R9)(BX*4), Y4; \
+	VFMADD231PS (SI)(BX*4), Y4, Y0; \
+	VMOVUPS (R10)(AX*4), Y5; \
+	VFMADD231PS (SI)(R8*4), Y5, Y0; \
+	VMOVUPS (R10)(R15*4), Y6; \
+	VFMADD231PS (SI)(R15*4), Y6, Y0
+
+// func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+TEXT ·chebyshevAVX(SB), NOSPLIT, $0-96
+	MOVQ n+0(FP), CX
+	NEIGHBOUR_INDICES
+	MOVQ x+24(FP), SI
+	MOVQ gx+32(FP), DI
+	MOVQ gy+40(FP), R9
+	MOVQ gz+48(FP), R10
+	MOVQ inv+56(FP), R11
+	MOVQ b+64(FP), R12
+	MOVQ d+72(FP), R13
+	MOVQ dst+80(FP), R14
+	VBROADCASTSS cr+88(FP), Y14
+	VBROADCASTSS cd+92(FP), Y15
+	CMPQ AX, CX
+	JGE chebDone
+chebLoop:
+	VMOVUPS (R12)(AX*4), Y0
+	SUM_NEIGHBOURS32
+	VMOVUPS (SI)(AX*4), Y7
+	VMULPS (R11)(AX*4), Y0, Y0
+	VSUBPS Y7, Y0, Y0
+	VMULPS (R13)(AX*4), Y15, Y8
+	VFMADD231PS Y0, Y14, Y8
+	VMOVUPS Y8, (R13)(AX*4)
+	VADDPS Y7, Y8, Y8
+	VMOVUPS Y8, (R14)(AX*4)
+	STEP_INDICES(8)
+	CMPQ AX, CX
+	JLT chebLoop
+chebDone:
+	VZEROUPPER
+	RET
+
+// func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
+TEXT ·residualAVX(SB), NOSPLIT, $0-88
+	MOVQ n+0(FP), CX
+	NEIGHBOUR_INDICES
+	MOVQ x+24(FP), SI
+	MOVQ gx+32(FP), DI
+	MOVQ gy+40(FP), R9
+	MOVQ gz+48(FP), R10
+	MOVQ inv+56(FP), R11
+	MOVQ b+64(FP), R12
+	MOVQ scale+72(FP), R13
+	MOVQ d+80(FP), R14
+	CMPQ AX, CX
+	JGE resDone
+resLoop:
+	VMOVUPS (R12)(AX*4), Y0
+	SUM_NEIGHBOURS32
+	VMOVUPS (SI)(AX*4), Y7
+	VDIVPS (R11)(AX*4), Y7, Y7
+	VSUBPS Y7, Y0, Y0
+	VMULPS (R13)(AX*4), Y0, Y0
+	VMOVUPS Y0, (R14)(AX*4)
+	STEP_INDICES(8)
+	CMPQ AX, CX
+	JLT resLoop
+resDone:
+	VZEROUPPER
+	RET
+
+// func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
+TEXT ·productAVX(SB), NOSPLIT, $0-80
+	MOVQ n+0(FP), CX
+	NEIGHBOUR_INDICES
+	MOVQ p+24(FP), SI
+	MOVQ gx+32(FP), DI
+	MOVQ gy+40(FP), R9
+	MOVQ gz+48(FP), R10
+	MOVQ diag+56(FP), R11
+	MOVQ q+64(FP), R12
+	VXORPD Y9, Y9, Y9
+	CMPQ AX, CX
+	JGE prodDone
+prodLoop:
+	VMOVUPD (SI)(AX*8), Y7
+	VMULPD (R11)(AX*8), Y7, Y0
+	VCVTPS2PD (DI)(AX*4), Y1
+	VFNMADD231PD 8(SI)(AX*8), Y1, Y0
+	VCVTPS2PD -4(DI)(AX*4), Y2
+	VFNMADD231PD -8(SI)(AX*8), Y2, Y0
+	VCVTPS2PD (R9)(AX*4), Y3
+	VFNMADD231PD (SI)(DX*8), Y3, Y0
+	VCVTPS2PD (R9)(BX*4), Y4
+	VFNMADD231PD (SI)(BX*8), Y4, Y0
+	VCVTPS2PD (R10)(AX*4), Y5
+	VFNMADD231PD (SI)(R8*8), Y5, Y0
+	VCVTPS2PD (R10)(R15*4), Y6
+	VFNMADD231PD (SI)(R15*8), Y6, Y0
+	VMOVUPD Y0, (R12)(AX*8)
+	VFMADD231PD Y7, Y0, Y9
+	STEP_INDICES(4)
+	CMPQ AX, CX
+	JLT prodLoop
+prodDone:
+	VEXTRACTF128 $1, Y9, X10
+	VADDPD X10, X9, X9
+	VHADDPD X9, X9, X9
+	MOVSD X9, pq+72(FP)
+	VZEROUPPER
+	RET

@@ -34,7 +34,7 @@ const (
 	maxCoarseCells = 16
 	// smoothDegree is the degree of the Chebyshev smoother before and
 	// after the coarse correction.
-	smoothDegree = 2
+	smoothDegree = 4
 	// smoothRange is λmax/λmin of the interval the smoother damps: the
 	// upper part of the spectrum of D⁻¹A, which the coarse grid cannot see.
 	smoothRange = 8.0

@@ -85,6 +85,10 @@ type material struct {
 	k    Curve
 	cp   Curve
 	h    enthalpy
+	// constantCp holds cp when it is the same at every temperature, 0
+	// otherwise: the enthalpy is then cp·(T − initial) and the
+	// assembly skips the curve lookups.
+	constantCp float64
 }
 
 // run is the working state of one Solve.
@@ -157,8 +161,12 @@ func newRunOn(p *Problem, vector bool) *run {
 	vol := g.CellSize * g.CellSize * g.CellSize
 	r.linear, r.constantK = true, true
 	for _, m := range p.Materials {
-		r.mats = append(r.mats, material{rhoV: m.Density * vol, k: m.Conductivity, cp: m.SpecificHeat,
-			h: newEnthalpy(m.SpecificHeat, p.Initial)})
+		mat := material{rhoV: m.Density * vol, k: m.Conductivity, cp: m.SpecificHeat,
+			h: newEnthalpy(m.SpecificHeat, p.Initial)}
+		if m.SpecificHeat.isConstant() {
+			mat.constantCp = m.SpecificHeat.At(p.Initial)
+		}
+		r.mats = append(r.mats, mat)
 		if !m.Conductivity.isConstant() {
 			r.constantK, r.linear = false, false
 		}
@@ -584,20 +592,28 @@ func (r *run) fill(w int) {
 	g, st := r.g, &r.st
 	nx, nxy := st.nx, st.nxy
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
+	ref := r.p.Initial // the enthalpy's zero
 	for _, sp := range r.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			m := &r.mats[g.Region[c-r.pad]-1]
-			ts := r.tstar[i]
 			capacity := m.rhoV / r.dt
+			// A conductance to a cell outside the part (or beyond the
+			// box, in the padding) is 0.
+			gsum := float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
+				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
+			if cp := m.constantCp; cp != 0 {
+				// h(T) = cp·(T − ref), so h(T*) − cp·T* = −cp·ref.
+				st.diag[i] = a0*capacity*cp + gsum
+				r.b[i] = capacity * cp * (a1*(r.tn[i]-ref) - a2*(r.tnm1[i]-ref) + a0*ref)
+				continue
+			}
+			ts := r.tstar[i]
 			cp := m.cp.At(ts)
 			old := a1 * m.h.At(r.tn[i])
 			if a2 != 0 {
 				old -= a2 * m.h.At(r.tnm1[i])
 			}
-			// A conductance to a cell outside the part (or beyond the
-			// box, in the padding) is 0.
-			st.diag[i] = a0*capacity*cp + float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
-				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
+			st.diag[i] = a0*capacity*cp + gsum
 			r.b[i] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
 		}
 	}

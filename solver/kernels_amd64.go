@@ -15,3 +15,15 @@ func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
 
 //go:noescape
 func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
+
+//go:noescape
+func axpyAVX(n int, w float32, src, dst *float32)
+
+//go:noescape
+func updateAVX(n int, alpha float64, x, p, r, q *float64, rb *float32) (rr float64)
+
+//go:noescape
+func directionAVX(n int, beta float64, z *float32, p *float64)
+
+//go:noescape
+func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64)

@@ -141,3 +141,112 @@ prodDone:
 	MOVSD X9, pq+72(FP)
 	VZEROUPPER
 	RET
+
+// func axpyAVX(n int, w float32, src, dst *float32)
+// dst += w·src over n cells, n a multiple of 8.
+TEXT ·axpyAVX(SB), NOSPLIT, $0-32
+	MOVQ n+0(FP), CX
+	VBROADCASTSS w+8(FP), Y1
+	MOVQ src+16(FP), SI
+	MOVQ dst+24(FP), DI
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE axpyDone
+axpyLoop:
+	VMOVUPS (DI)(AX*4), Y0
+	VFMADD231PS (SI)(AX*4), Y1, Y0
+	VMOVUPS Y0, (DI)(AX*4)
+	ADDQ $8, AX
+	CMPQ AX, CX
+	JLT axpyLoop
+axpyDone:
+	VZEROUPPER
+	RET
+
+// func updateAVX(n int, alpha float64, x, p, r, q *float64, rb *float32) (rr float64)
+// x += α·p, r −= α·q, rb = float32(r); returns Σ r² over n cells, n a
+// multiple of 4.
+TEXT ·updateAVX(SB), NOSPLIT, $0-64
+	MOVQ n+0(FP), CX
+	VBROADCASTSD alpha+8(FP), Y15
+	MOVQ x+16(FP), SI
+	MOVQ p+24(FP), DI
+	MOVQ r+32(FP), R8
+	MOVQ q+40(FP), R9
+	MOVQ rb+48(FP), R10
+	VXORPD Y9, Y9, Y9
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE updDone
+updLoop:
+	VMOVUPD (SI)(AX*8), Y0
+	VFMADD231PD (DI)(AX*8), Y15, Y0
+	VMOVUPD Y0, (SI)(AX*8)
+	VMOVUPD (R8)(AX*8), Y1
+	VFNMADD231PD (R9)(AX*8), Y15, Y1
+	VMOVUPD Y1, (R8)(AX*8)
+	VCVTPD2PSY Y1, X2
+	VMOVUPS X2, (R10)(AX*4)
+	VFMADD231PD Y1, Y1, Y9
+	ADDQ $4, AX
+	CMPQ AX, CX
+	JLT updLoop
+updDone:
+	VEXTRACTF128 $1, Y9, X10
+	VADDPD X10, X9, X9
+	VHADDPD X9, X9, X9
+	MOVSD X9, rr+56(FP)
+	VZEROUPPER
+	RET
+
+// func directionAVX(n int, beta float64, z *float32, p *float64)
+// p = z + β·p over n cells, n a multiple of 4.
+TEXT ·directionAVX(SB), NOSPLIT, $0-32
+	MOVQ n+0(FP), CX
+	VBROADCASTSD beta+8(FP), Y15
+	MOVQ z+16(FP), SI
+	MOVQ p+24(FP), DI
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE dirDone
+dirLoop:
+	VCVTPS2PD (SI)(AX*4), Y0
+	VFMADD231PD (DI)(AX*8), Y15, Y0
+	VMOVUPD Y0, (DI)(AX*8)
+	ADDQ $4, AX
+	CMPQ AX, CX
+	JLT dirLoop
+dirDone:
+	VZEROUPPER
+	RET
+
+// func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64)
+// Σ r·z and Σ z·q over n cells, n a multiple of 4.
+TEXT ·dotAVX(SB), NOSPLIT, $0-48
+	MOVQ n+0(FP), CX
+	MOVQ r+8(FP), SI
+	MOVQ z+16(FP), DI
+	MOVQ q+24(FP), R8
+	VXORPD Y8, Y8, Y8
+	VXORPD Y9, Y9, Y9
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE dotDone
+dotLoop:
+	VCVTPS2PD (DI)(AX*4), Y0
+	VFMADD231PD (SI)(AX*8), Y0, Y8
+	VFMADD231PD (R8)(AX*8), Y0, Y9
+	ADDQ $4, AX
+	CMPQ AX, CX
+	JLT dotLoop
+dotDone:
+	VEXTRACTF128 $1, Y8, X10
+	VADDPD X10, X8, X8
+	VHADDPD X8, X8, X8
+	MOVSD X8, rz+32(FP)
+	VEXTRACTF128 $1, Y9, X10
+	VADDPD X10, X9, X9
+	VHADDPD X9, X9, X9
+	MOVSD X9, zq+40(FP)
+	VZEROUPPER
+	RET

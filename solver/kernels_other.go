@@ -17,3 +17,19 @@ func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32) {
 func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) float64 {
 	panic("solver: no vector kernels on this architecture")
 }
+
+func axpyAVX(n int, w float32, src, dst *float32) {
+	panic("solver: no vector kernels on this architecture")
+}
+
+func updateAVX(n int, alpha float64, x, p, r, q *float64, rb *float32) float64 {
+	panic("solver: no vector kernels on this architecture")
+}
+
+func directionAVX(n int, beta float64, z *float32, p *float64) {
+	panic("solver: no vector kernels on this architecture")
+}
+
+func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64) {
+	panic("solver: no vector kernels on this architecture")
+}

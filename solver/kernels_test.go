@@ -84,6 +84,53 @@ func TestVectorKernelsMatchLoops(t *testing.T) {
 	if math.Abs(sv-sl) > 1e-12*math.Abs(sl) {
 		t.Fatalf("p·Ap: vector %g, loop %g", sv, sl)
 	}
+
+	// The CG vector updates, each pass run both ways from the same state.
+	cg := r.lin.(*multigridCG)
+	cg.a, cg.x = a, make([]float64, len(r.t))
+	defer func() { cg.a, cg.x = nil, nil }()
+	random := func(v []float64) {
+		for i := range v {
+			v[i] = rng.Float64() - 0.5
+		}
+	}
+	random(cg.x)
+	random(cg.p)
+	random(cg.r)
+	random(cg.q)
+	cg.alpha, cg.beta = 0.7, 0.4
+	state := func() [][]float64 {
+		return [][]float64{append([]float64(nil), cg.x...), append([]float64(nil), cg.p...), append([]float64(nil), cg.r...)}
+	}
+	restore := func(s [][]float64) { copy(cg.x, s[0]); copy(cg.p, s[1]); copy(cg.r, s[2]) }
+	before := state()
+	for _, pass := range []struct {
+		name string
+		task func(int)
+	}{{"update", cg.update}, {"dot", cg.dot}, {"direction", cg.direction}} {
+		var sums [2]partial
+		var after [2][][]float64
+		for k, vector := range []bool{true, false} {
+			restore(before)
+			a.vector = vector
+			for w := range cg.slabs {
+				pass.task(w)
+				sums[k].a += cg.sums[w].a
+				sums[k].b += cg.sums[w].b
+			}
+			after[k] = state()
+		}
+		for v := range after[0] {
+			for i := range after[0][v] {
+				if got, want := after[0][v][i], after[1][v][i]; math.Abs(got-want) > 1e-12*math.Abs(want)+1e-15 {
+					t.Fatalf("%s, array %d, index %d: vector %g, loop %g", pass.name, v, i, got, want)
+				}
+			}
+		}
+		if math.Abs(sums[0].a-sums[1].a) > 1e-12*math.Abs(sums[1].a) || math.Abs(sums[0].b-sums[1].b) > 1e-12*math.Abs(sums[1].b) {
+			t.Fatalf("%s sums: vector %v, loop %v", pass.name, sums[0], sums[1])
+		}
+	}
 }
 
 // TestVectorAndLoopStepsAgree takes one step of the bracket with the

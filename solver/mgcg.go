@@ -142,11 +142,12 @@ func (s *multigridCG) fromStencil(w int) {
 
 // start sets r = b − A·x and hands r to the preconditioner; sums b·b and r·r.
 func (s *multigridCG) start(w int) {
-	a, x, b, r, pb := s.a, s.x, s.b, s.r, s.mg.levels[0].b
+	b, r, pb := s.b, s.r, s.mg.levels[0].b
+	s.a.product(s.slabs[w], s.x, r) // r = A·x for now
 	var bb, rr float64
 	for _, sp := range s.slabs[w] {
-		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			rc := b[i] - a.times(x, c, i)
+		for i := sp.at; i < sp.at+sp.hi-sp.lo; i++ {
+			rc := b[i] - r[i]
 			r[i], pb[i] = rc, float32(rc)
 			bb += b[i] * b[i]
 			rr += rc * rc
@@ -164,7 +165,13 @@ func (s *multigridCG) update(w int) {
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
 		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.at:sp.at+n]
-		for i := range r {
+		x, p, q, rb = x[:len(r)], p[:len(r)], q[:len(r)], rb[:len(r)]
+		i := 0
+		if s.a.vector && n >= 4 {
+			i = n &^ 3
+			rr += updateAVX(i, alpha, &x[0], &p[0], &r[0], &q[0], &rb[0])
+		}
+		for ; i < len(r); i++ {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]
 			r[i], rb[i] = rc, float32(rc)
@@ -181,7 +188,14 @@ func (s *multigridCG) dot(w int) {
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
 		r, q, zs := s.r[sp.at:sp.at+n], s.q[sp.at:sp.at+n], z[sp.lo:sp.hi]
-		for i := range r {
+		q, zs = q[:len(r)], zs[:len(r)]
+		i := 0
+		if s.a.vector && n >= 4 {
+			i = n &^ 3
+			a, b := dotAVX(i, &r[0], &zs[0], &q[0])
+			rz, zq = rz+a, zq+b
+		}
+		for ; i < len(r); i++ {
 			zi := float64(zs[i])
 			rz += r[i] * zi
 			zq += zi * q[i]
@@ -195,7 +209,13 @@ func (s *multigridCG) direction(w int) {
 	beta, z := s.beta, s.mg.levels[0].x
 	for _, sp := range s.slabs[w] {
 		p, zs := s.p[sp.lo:sp.hi], z[sp.lo:sp.hi]
-		for i := range p {
+		zs = zs[:len(p)]
+		i := 0
+		if s.a.vector && len(p) >= 4 {
+			i = len(p) &^ 3
+			directionAVX(i, beta, &zs[0], &p[0])
+		}
+		for ; i < len(p); i++ {
 			p[i] = float64(zs[i]) + beta*p[i]
 		}
 	}

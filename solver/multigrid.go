@@ -447,10 +447,15 @@ func (l *mgLevel) prolong(w int, spans []span) {
 		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
 		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
 		lo, hi := max(0, first/f[0]-1), min(c.n[0], last/f[0]+2)
-		b, a00, a01, a10, a11 := row[lo+1:hi+1], cx[r00+lo:r00+hi], cx[r01+lo:r01+hi], cx[r10+lo:r10+hi], cx[r11+lo:r11+hi]
-		a00, a01, a10, a11 = a00[:len(b)], a01[:len(b)], a10[:len(b)], a11[:len(b)]
-		for I := range b {
-			b[I] = w00*a00[I] + w01*a01[I] + w10*a10[I] + w11*a11[I]
+		b := row[lo+1 : hi+1]
+		clear(b)
+		for _, t := range [4]struct {
+			w  float32
+			at int
+		}{{w00, r00}, {w01, r01}, {w10, r10}, {w11, r11}} {
+			if t.w != 0 {
+				axpy(l.vector, t.w, cx[t.at+lo:t.at+hi], b)
+			}
 		}
 		xs, sc := x[sp.lo:sp.hi], scale[sp.at:sp.at+sp.hi-sp.lo]
 		sc = sc[:len(xs)]
@@ -462,14 +467,23 @@ func (l *mgLevel) prolong(w int, spans []span) {
 			}
 			continue
 		}
-		for i := range xs {
-			ii := first + i
-			I := ii >> 1
-			side := I // the parent's neighbour on the child's side, in row's indices
-			if ii&1 == 1 {
-				side = I + 2
-			}
-			xs[i] += sc[i] * (0.75*row[I+1] + 0.25*row[side])
+		// A child at even ii takes its parent's lower neighbour, at odd
+		// ii the upper one; go by pairs of children of one parent.
+		i := 0
+		if first&1 == 1 {
+			I := first >> 1
+			xs[0] += sc[0] * (0.75*row[I+1] + 0.25*row[I+2])
+			i = 1
+		}
+		for ; i+1 < len(xs); i += 2 {
+			I := (first + i) >> 1
+			t := row[I : I+3 : I+3]
+			xs[i] += sc[i] * (0.75*t[1] + 0.25*t[0])
+			xs[i+1] += sc[i+1] * (0.75*t[1] + 0.25*t[2])
+		}
+		if i < len(xs) {
+			I := (first + i) >> 1
+			xs[i] += sc[i] * (0.75*row[I+1] + 0.25*row[I])
 		}
 	}
 }
@@ -519,17 +533,9 @@ func (l *mgLevel) restrict(w int) {
 		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
 		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
 		b := row[lo+1 : hi+1]
-		src := d[rowAt[0]+lo : rowAt[0]+hi]
-		src = src[:len(b)]
-		for i := range b {
-			b[i] = rowWeight[0] * src[i]
-		}
-		for r := 1; r < m; r++ {
-			src, wr := d[rowAt[r]+lo:rowAt[r]+hi], rowWeight[r]
-			src = src[:len(b)]
-			for i := range b {
-				b[i] += wr * src[i]
-			}
+		clear(b)
+		for r := range m {
+			axpy(l.vector, rowWeight[r], d[rowAt[r]+lo:rowAt[r]+hi], b)
 		}
 		out := c.b[sp.at : sp.at+sp.hi-sp.lo]
 		if f[0] == 1 {

@@ -1,11 +1,11 @@
 #include "textflag.h"
 
-// Stencil kernels in AVX2 with FMA, eight float32 or four float64 cells
-// at a time. The caller passes n, a multiple of 8 (float32) or 4
-// (float64), and pointers to the first cell of a span, whose windows it
-// has checked: the kernels read the cells' neighbours at ±1, ±nx and
-// ±nxy. Registers: AX is the cell index i; BX, DX, R8 and R15 are i−nx,
-// i+nx, i+nxy and i−nxy.
+// Stencil and vector kernels in AVX2 with FMA: eight float32 or four
+// float64 cells at a time, then the rest of the n cells one at a time, so
+// that a span of any length takes one call. The caller passes pointers to
+// the first cell of a span, whose windows it has checked: the stencil
+// kernels read the cells' neighbours at ±1, ±nx and ±nxy. Registers: AX is
+// the cell index i; BX, DX, R8 and R15 are i−nx, i+nx, i+nxy and i−nxy.
 
 #define NEIGHBOUR_INDICES \
 	MOVQ nx+8(FP), DX; \
@@ -23,7 +23,7 @@
 	ADDQ $k, R8; \
 	ADDQ $k, R15
 
-// SUM_NEIGHBOURS32 adds Σ g·x over the six neighbours to Y0.
+// SUM_NEIGHBOURS32 adds Σ g·x over the six neighbours to Y0 (eight cells).
 #define SUM_NEIGHBOURS32 \
 	VMOVUPS (DI)(AX*4), Y1; \
 	VFMADD231PS 4(SI)(AX*4), Y1, Y0; \
@@ -38,9 +38,32 @@
 	VMOVUPS (R10)(R15*4), Y6; \
 	VFMADD231PS (SI)(R15*4), Y6, Y0
 
+// SUM_NEIGHBOURS32S is SUM_NEIGHBOURS32 for one cell, in X0.
+#define SUM_NEIGHBOURS32S \
+	VMOVSS (DI)(AX*4), X1; \
+	VFMADD231SS 4(SI)(AX*4), X1, X0; \
+	VMOVSS -4(DI)(AX*4), X2; \
+	VFMADD231SS -4(SI)(AX*4), X2, X0; \
+	VMOVSS (R9)(AX*4), X3; \
+	VFMADD231SS (SI)(DX*4), X3, X0; \
+	VMOVSS (R9)(BX*4), X4; \
+	VFMADD231SS (SI)(BX*4), X4, X0; \
+	VMOVSS (R10)(AX*4), X5; \
+	VFMADD231SS (SI)(R8*4), X5, X0; \
+	VMOVSS (R10)(R15*4), X6; \
+	VFMADD231SS (SI)(R15*4), X6, X0
+
+// HSUM_PD leaves the sum of the four doubles of Y in the low lane of X.
+#define HSUM_PD(Y, X) \
+	VEXTRACTF128 $1, Y, X10; \
+	VADDPD X10, X, X; \
+	VHADDPD X, X, X
+
 // func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+// d ← cd·d + cr·(inv·(b + Σ g·x_nb) − x), dst = x + d.
 TEXT ·chebyshevAVX(SB), NOSPLIT, $0-96
 	MOVQ n+0(FP), CX
+	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
 	MOVQ x+24(FP), SI
 	MOVQ gx+32(FP), DI
@@ -53,7 +76,7 @@ TEXT ·chebyshevAVX(SB), NOSPLIT, $0-96
 	VBROADCASTSS cr+88(FP), Y14
 	VBROADCASTSS cd+92(FP), Y15
 	CMPQ AX, CX
-	JGE chebDone
+	JGE chebTail
 chebLoop:
 	VMOVUPS (R12)(AX*4), Y0
 	SUM_NEIGHBOURS32
@@ -68,13 +91,33 @@ chebLoop:
 	STEP_INDICES(8)
 	CMPQ AX, CX
 	JLT chebLoop
+chebTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE chebDone
+chebTailLoop:
+	VMOVSS (R12)(AX*4), X0
+	SUM_NEIGHBOURS32S
+	VMOVSS (SI)(AX*4), X7
+	VMULSS (R11)(AX*4), X0, X0
+	VSUBSS X7, X0, X0
+	VMULSS (R13)(AX*4), X15, X8
+	VFMADD231SS X0, X14, X8
+	VMOVSS X8, (R13)(AX*4)
+	VADDSS X7, X8, X8
+	VMOVSS X8, (R14)(AX*4)
+	STEP_INDICES(1)
+	CMPQ AX, CX
+	JLT chebTailLoop
 chebDone:
 	VZEROUPPER
 	RET
 
 // func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
+// d = scale·(b + Σ g·x_nb − x/inv).
 TEXT ·residualAVX(SB), NOSPLIT, $0-88
 	MOVQ n+0(FP), CX
+	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
 	MOVQ x+24(FP), SI
 	MOVQ gx+32(FP), DI
@@ -85,7 +128,7 @@ TEXT ·residualAVX(SB), NOSPLIT, $0-88
 	MOVQ scale+72(FP), R13
 	MOVQ d+80(FP), R14
 	CMPQ AX, CX
-	JGE resDone
+	JGE resTail
 resLoop:
 	VMOVUPS (R12)(AX*4), Y0
 	SUM_NEIGHBOURS32
@@ -97,13 +140,30 @@ resLoop:
 	STEP_INDICES(8)
 	CMPQ AX, CX
 	JLT resLoop
+resTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE resDone
+resTailLoop:
+	VMOVSS (R12)(AX*4), X0
+	SUM_NEIGHBOURS32S
+	VMOVSS (SI)(AX*4), X7
+	VDIVSS (R11)(AX*4), X7, X7
+	VSUBSS X7, X0, X0
+	VMULSS (R13)(AX*4), X0, X0
+	VMOVSS X0, (R14)(AX*4)
+	STEP_INDICES(1)
+	CMPQ AX, CX
+	JLT resTailLoop
 resDone:
 	VZEROUPPER
 	RET
 
 // func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
+// q = diag·p − Σ g·p_nb; returns Σ p·q.
 TEXT ·productAVX(SB), NOSPLIT, $0-80
 	MOVQ n+0(FP), CX
+	ANDQ $-4, CX
 	NEIGHBOUR_INDICES
 	MOVQ p+24(FP), SI
 	MOVQ gx+32(FP), DI
@@ -113,7 +173,7 @@ TEXT ·productAVX(SB), NOSPLIT, $0-80
 	MOVQ q+64(FP), R12
 	VXORPD Y9, Y9, Y9
 	CMPQ AX, CX
-	JGE prodDone
+	JGE prodTail
 prodLoop:
 	VMOVUPD (SI)(AX*8), Y7
 	VMULPD (R11)(AX*8), Y7, Y0
@@ -134,24 +194,47 @@ prodLoop:
 	STEP_INDICES(4)
 	CMPQ AX, CX
 	JLT prodLoop
+prodTail:
+	HSUM_PD(Y9, X9)
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE prodDone
+prodTailLoop:
+	VMOVSD (SI)(AX*8), X7
+	VMULSD (R11)(AX*8), X7, X0
+	VCVTSS2SD (DI)(AX*4), X1, X1
+	VFNMADD231SD 8(SI)(AX*8), X1, X0
+	VCVTSS2SD -4(DI)(AX*4), X2, X2
+	VFNMADD231SD -8(SI)(AX*8), X2, X0
+	VCVTSS2SD (R9)(AX*4), X3, X3
+	VFNMADD231SD (SI)(DX*8), X3, X0
+	VCVTSS2SD (R9)(BX*4), X4, X4
+	VFNMADD231SD (SI)(BX*8), X4, X0
+	VCVTSS2SD (R10)(AX*4), X5, X5
+	VFNMADD231SD (SI)(R8*8), X5, X0
+	VCVTSS2SD (R10)(R15*4), X6, X6
+	VFNMADD231SD (SI)(R15*8), X6, X0
+	VMOVSD X0, (R12)(AX*8)
+	VFMADD231SD X7, X0, X9
+	STEP_INDICES(1)
+	CMPQ AX, CX
+	JLT prodTailLoop
 prodDone:
-	VEXTRACTF128 $1, Y9, X10
-	VADDPD X10, X9, X9
-	VHADDPD X9, X9, X9
-	MOVSD X9, pq+72(FP)
+	VMOVSD X9, pq+72(FP)
 	VZEROUPPER
 	RET
 
 // func axpyAVX(n int, w float32, src, dst *float32)
-// dst += w·src over n cells, n a multiple of 8.
+// dst += w·src.
 TEXT ·axpyAVX(SB), NOSPLIT, $0-32
 	MOVQ n+0(FP), CX
+	ANDQ $-8, CX
 	VBROADCASTSS w+8(FP), Y1
 	MOVQ src+16(FP), SI
 	MOVQ dst+24(FP), DI
 	XORQ AX, AX
 	CMPQ AX, CX
-	JGE axpyDone
+	JGE axpyTail
 axpyLoop:
 	VMOVUPS (DI)(AX*4), Y0
 	VFMADD231PS (SI)(AX*4), Y1, Y0
@@ -159,15 +242,26 @@ axpyLoop:
 	ADDQ $8, AX
 	CMPQ AX, CX
 	JLT axpyLoop
+axpyTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE axpyDone
+axpyTailLoop:
+	VMOVSS (DI)(AX*4), X0
+	VFMADD231SS (SI)(AX*4), X1, X0
+	VMOVSS X0, (DI)(AX*4)
+	ADDQ $1, AX
+	CMPQ AX, CX
+	JLT axpyTailLoop
 axpyDone:
 	VZEROUPPER
 	RET
 
 // func updateAVX(n int, alpha float64, x, p, r, q *float64, rb *float32) (rr float64)
-// x += α·p, r −= α·q, rb = float32(r); returns Σ r² over n cells, n a
-// multiple of 4.
+// x += α·p, r −= α·q, rb = float32(r); returns Σ r².
 TEXT ·updateAVX(SB), NOSPLIT, $0-64
 	MOVQ n+0(FP), CX
+	ANDQ $-4, CX
 	VBROADCASTSD alpha+8(FP), Y15
 	MOVQ x+16(FP), SI
 	MOVQ p+24(FP), DI
@@ -177,7 +271,7 @@ TEXT ·updateAVX(SB), NOSPLIT, $0-64
 	VXORPD Y9, Y9, Y9
 	XORQ AX, AX
 	CMPQ AX, CX
-	JGE updDone
+	JGE updTail
 updLoop:
 	VMOVUPD (SI)(AX*8), Y0
 	VFMADD231PD (DI)(AX*8), Y15, Y0
@@ -191,24 +285,40 @@ updLoop:
 	ADDQ $4, AX
 	CMPQ AX, CX
 	JLT updLoop
+updTail:
+	HSUM_PD(Y9, X9)
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE updDone
+updTailLoop:
+	VMOVSD (SI)(AX*8), X0
+	VFMADD231SD (DI)(AX*8), X15, X0
+	VMOVSD X0, (SI)(AX*8)
+	VMOVSD (R8)(AX*8), X1
+	VFNMADD231SD (R9)(AX*8), X15, X1
+	VMOVSD X1, (R8)(AX*8)
+	VCVTSD2SS X1, X2, X2
+	VMOVSS X2, (R10)(AX*4)
+	VFMADD231SD X1, X1, X9
+	ADDQ $1, AX
+	CMPQ AX, CX
+	JLT updTailLoop
 updDone:
-	VEXTRACTF128 $1, Y9, X10
-	VADDPD X10, X9, X9
-	VHADDPD X9, X9, X9
-	MOVSD X9, rr+56(FP)
+	VMOVSD X9, rr+56(FP)
 	VZEROUPPER
 	RET
 
 // func directionAVX(n int, beta float64, z *float32, p *float64)
-// p = z + β·p over n cells, n a multiple of 4.
+// p = z + β·p.
 TEXT ·directionAVX(SB), NOSPLIT, $0-32
 	MOVQ n+0(FP), CX
+	ANDQ $-4, CX
 	VBROADCASTSD beta+8(FP), Y15
 	MOVQ z+16(FP), SI
 	MOVQ p+24(FP), DI
 	XORQ AX, AX
 	CMPQ AX, CX
-	JGE dirDone
+	JGE dirTail
 dirLoop:
 	VCVTPS2PD (SI)(AX*4), Y0
 	VFMADD231PD (DI)(AX*8), Y15, Y0
@@ -216,14 +326,26 @@ dirLoop:
 	ADDQ $4, AX
 	CMPQ AX, CX
 	JLT dirLoop
+dirTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE dirDone
+dirTailLoop:
+	VCVTSS2SD (SI)(AX*4), X0, X0
+	VFMADD231SD (DI)(AX*8), X15, X0
+	VMOVSD X0, (DI)(AX*8)
+	ADDQ $1, AX
+	CMPQ AX, CX
+	JLT dirTailLoop
 dirDone:
 	VZEROUPPER
 	RET
 
 // func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64)
-// Σ r·z and Σ z·q over n cells, n a multiple of 4.
+// Σ r·z and Σ z·q.
 TEXT ·dotAVX(SB), NOSPLIT, $0-48
 	MOVQ n+0(FP), CX
+	ANDQ $-4, CX
 	MOVQ r+8(FP), SI
 	MOVQ z+16(FP), DI
 	MOVQ q+24(FP), R8
@@ -231,7 +353,7 @@ TEXT ·dotAVX(SB), NOSPLIT, $0-48
 	VXORPD Y9, Y9, Y9
 	XORQ AX, AX
 	CMPQ AX, CX
-	JGE dotDone
+	JGE dotTail
 dotLoop:
 	VCVTPS2PD (DI)(AX*4), Y0
 	VFMADD231PD (SI)(AX*8), Y0, Y8
@@ -239,14 +361,21 @@ dotLoop:
 	ADDQ $4, AX
 	CMPQ AX, CX
 	JLT dotLoop
+dotTail:
+	HSUM_PD(Y8, X8)
+	HSUM_PD(Y9, X9)
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE dotDone
+dotTailLoop:
+	VCVTSS2SD (DI)(AX*4), X0, X0
+	VFMADD231SD (SI)(AX*8), X0, X8
+	VFMADD231SD (R8)(AX*8), X0, X9
+	ADDQ $1, AX
+	CMPQ AX, CX
+	JLT dotTailLoop
 dotDone:
-	VEXTRACTF128 $1, Y8, X10
-	VADDPD X10, X8, X8
-	VHADDPD X8, X8, X8
-	MOVSD X8, rz+32(FP)
-	VEXTRACTF128 $1, Y9, X10
-	VADDPD X10, X9, X9
-	VHADDPD X9, X9, X9
-	MOVSD X9, zq+40(FP)
+	VMOVSD X8, rz+32(FP)
+	VMOVSD X9, zq+40(FP)
 	VZEROUPPER
 	RET

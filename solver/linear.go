@@ -257,6 +257,13 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 	var pq float64
 	for _, sp := range spans {
 		lo, n := sp.lo, sp.hi-sp.lo
+		if a.vector {
+			// Every cell the kernel reads, checked.
+			_, _, _ = p[lo-nxy:sp.hi+nxy], a.diag[sp.at:sp.at+n], q[sp.at:sp.at+n]
+			_, _, _ = a.gx[lo-1:sp.hi], a.gy[lo-nx:sp.hi], a.gz[lo-nxy:sp.hi]
+			pq += productAVX(n, nx, nxy, &p[lo], &a.gx[lo], &a.gy[lo], &a.gz[lo], &a.diag[sp.at], &q[sp.at])
+			continue
+		}
 		// Equal-length windows let the compiler drop the bounds checks.
 		pc, pw, pe, ps, pn, pd, pu := p[lo:lo+n], p[lo-1:lo-1+n], p[lo+1:lo+1+n], p[lo-nx:lo-nx+n], p[lo+nx:lo+nx+n],
 			p[lo-nxy:lo-nxy+n], p[lo+nxy:lo+nxy+n]
@@ -265,12 +272,7 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 		qc := q[sp.at : sp.at+n]
 		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]
 		diag, gx, gxw, gy, gys, gz, gzd, qc = diag[:len(pc)], gx[:len(pc)], gxw[:len(pc)], gy[:len(pc)], gys[:len(pc)], gz[:len(pc)], gzd[:len(pc)], qc[:len(pc)]
-		i := 0
-		if a.vector && n >= 4 {
-			i = n &^ 3
-			pq += productAVX(i, nx, nxy, &pc[0], &gx[0], &gy[0], &gz[0], &diag[0], &qc[0])
-		}
-		for ; i < len(pc); i++ {
+		for i := range pc {
 			ap := diag[i]*pc[i] - float64(gx[i])*pe[i] - float64(gxw[i])*pw[i] -
 				float64(gy[i])*pn[i] - float64(gys[i])*ps[i] -
 				float64(gz[i])*pu[i] - float64(gzd[i])*pd[i]

@@ -166,12 +166,11 @@ func (s *multigridCG) update(w int) {
 		n := sp.hi - sp.lo
 		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.at:sp.at+n]
 		x, p, q, rb = x[:len(r)], p[:len(r)], q[:len(r)], rb[:len(r)]
-		i := 0
-		if s.a.vector && n >= 4 {
-			i = n &^ 3
-			rr += updateAVX(i, alpha, &x[0], &p[0], &r[0], &q[0], &rb[0])
+		if s.a.vector {
+			rr += updateAVX(n, alpha, &x[0], &p[0], &r[0], &q[0], &rb[0])
+			continue
 		}
-		for ; i < len(r); i++ {
+		for i := range r {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]
 			r[i], rb[i] = rc, float32(rc)
@@ -189,13 +188,12 @@ func (s *multigridCG) dot(w int) {
 		n := sp.hi - sp.lo
 		r, q, zs := s.r[sp.at:sp.at+n], s.q[sp.at:sp.at+n], z[sp.lo:sp.hi]
 		q, zs = q[:len(r)], zs[:len(r)]
-		i := 0
-		if s.a.vector && n >= 4 {
-			i = n &^ 3
-			a, b := dotAVX(i, &r[0], &zs[0], &q[0])
+		if s.a.vector {
+			a, b := dotAVX(n, &r[0], &zs[0], &q[0])
 			rz, zq = rz+a, zq+b
+			continue
 		}
-		for ; i < len(r); i++ {
+		for i := range r {
 			zi := float64(zs[i])
 			rz += r[i] * zi
 			zq += zi * q[i]
@@ -210,12 +208,11 @@ func (s *multigridCG) direction(w int) {
 	for _, sp := range s.slabs[w] {
 		p, zs := s.p[sp.lo:sp.hi], z[sp.lo:sp.hi]
 		zs = zs[:len(p)]
-		i := 0
-		if s.a.vector && len(p) >= 4 {
-			i = len(p) &^ 3
-			directionAVX(i, beta, &zs[0], &p[0])
+		if s.a.vector {
+			directionAVX(len(p), beta, &zs[0], &p[0])
+			continue
 		}
-		for ; i < len(p); i++ {
+		for i := range p {
 			p[i] = float64(zs[i]) + beta*p[i]
 		}
 	}

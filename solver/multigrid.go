@@ -344,6 +344,20 @@ func (l *mgLevel) rows(sp span, x []float32) rows {
 	}
 }
 
+// reach checks that every cell a stencil kernel reads for span sp lies in
+// its array (the values x = src and their neighbours, the conductances of
+// the cells and of their lower neighbours, the inverse diagonal) and
+// returns the first of each, for the AVX2 kernels.
+func (l *mgLevel) reach(sp span, x []float32) (xp, gx, gy, gz, inv *float32) {
+	lo, hi := sp.lo, sp.hi
+	_ = x[lo-l.nxy : hi+l.nxy]
+	_ = l.gx[lo-1 : hi]
+	_ = l.gy[lo-l.nx : hi]
+	_ = l.gz[lo-l.nxy : hi]
+	_ = l.inv[sp.at : sp.at+hi-lo]
+	return &x[lo], &l.gx[lo], &l.gy[lo], &l.gz[lo], &l.inv[sp.at]
+}
+
 // smoothFromZero runs the first Chebyshev step from x = 0 on spans:
 // d = cr·D⁻¹b, dst = d.
 func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
@@ -367,16 +381,16 @@ func (l *mgLevel) smooth(spans []span, step int, src, dst []float32) {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		d, next := win(l.d, sp.lo, n)[:len(b)], win(dst, sp.lo, n)[:len(b)]
+		if l.vector {
+			x, gx, gy, gz, inv := l.reach(sp, src)
+			chebyshevAVX(n, l.nx, l.nxy, x, gx, gy, gz, inv, &b[0], &d[0], &next[0], cr, cd)
+			continue
+		}
 		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
 		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
-		i := 0
-		if l.vector && n >= 8 {
-			i = n &^ 7
-			chebyshevAVX(i, l.nx, l.nxy, &x[0], &gx[0], &gy[0], &gz[0], &inv[0], &b[0], &d[0], &next[0], cr, cd)
-		}
-		for ; i < len(b); i++ {
+		for i := range b {
 			// D⁻¹(b − A·x) = D⁻¹(b + Σ g·x_nb) − x
 			in := b[i] + gx[i]*xe[i] + gxw[i]*xw[i] + gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
 			v := cr*(in*inv[i]-x[i]) + cd*d[i]
@@ -392,16 +406,16 @@ func (l *mgLevel) residual(spans []span, src []float32) {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
+		if l.vector {
+			x, gx, gy, gz, inv := l.reach(sp, src)
+			residualAVX(n, l.nx, l.nxy, x, gx, gy, gz, inv, &b[0], &scale[0], &d[0])
+			continue
+		}
 		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
 		inv, gx, gxw, gy, gys, gz, gzd := a.inv[:n], a.gx[:n], a.gxw[:n], a.gy[:n], a.gys[:n], a.gz[:n], a.gzd[:n]
-		i := 0
-		if l.vector && n >= 8 {
-			i = n &^ 7
-			residualAVX(i, l.nx, l.nxy, &x[0], &gx[0], &gy[0], &gz[0], &inv[0], &b[0], &scale[0], &d[0])
-		}
-		for ; i < len(b); i++ {
+		for i := range b {
 			r := b[i] - x[i]/inv[i] + gx[i]*xe[i] + gxw[i]*xw[i] +
 				gy[i]*xn[i] + gys[i]*xs[i] + gz[i]*xu[i] + gzd[i]*xd[i]
 			d[i] = scale[i] * r

@@ -3,12 +3,11 @@ package solver
 // axpy sets dst += w·src, with the AVX2 kernel where vector allows.
 func axpy(vector bool, w float32, src, dst []float32) {
 	src = src[:len(dst)]
-	i := 0
-	if vector && len(dst) >= 8 {
-		i = len(dst) &^ 7
-		axpyAVX(i, w, &src[0], &dst[0])
+	if vector && len(dst) > 0 {
+		axpyAVX(len(dst), w, &src[0], &dst[0])
+		return
 	}
-	for ; i < len(dst); i++ {
+	for i := range dst {
 		dst[i] += w * src[i]
 	}
 }

@@ -135,7 +135,12 @@ type run struct {
 	// operands of the assembly tasks
 	dt                               float64
 	coef                             bdf
-	kTask, conductanceTask, fillTask func(int)
+	kTask, conductanceTask, fillTask, facesTask func(int)
+	// slabFaces lists, per slab, the faces of its cells, so that the
+	// face passes run on all workers without two touching one cell.
+	slabFaces [][]int32
+	// acc holds each worker's share of a reduction over the part.
+	acc []partial
 	// conductancesSet tells that the face conductances hold for every
 	// step (constant conductivities) and are set.
 	conductancesSet bool
@@ -215,9 +220,18 @@ func newRunOn(p *Problem, vector bool) *run {
 	r.tn, r.tnm1, r.tstar = grow[float64](mem, cells), grow[float64](mem, cells), grow[float64](mem, cells)
 	all := slices.Concat(r.slabs...)
 	r.facePart = make([]int32, len(g.Faces))
-	for i, f := range g.Faces {
-		r.facePart[i] = int32(partIndex(all, r.pad+int(f.Cell)))
+	r.slabFaces = make([][]int32, len(r.slabs))
+	slabEnd := make([]int, len(r.slabs)) // part index after each slab's last cell
+	for w, slab := range r.slabs {
+		slabEnd[w] = partCells(r.slabs[:w]) + partCells([][]span{slab})
 	}
+	for i, f := range g.Faces {
+		at := partIndex(all, r.pad+int(f.Cell))
+		r.facePart[i] = int32(at)
+		w, _ := slices.BinarySearch(slabEnd, at+1)
+		r.slabFaces[w] = append(r.slabFaces[w], int32(i))
+	}
+	r.acc = make([]partial, len(r.slabs))
 	r.ws = newWorkers(len(r.slabs))
 	if p.Stepping.Preconditioner == Jacobi {
 		r.lin = newJacobiCG(r.ws, r.slabs, size, mem)
@@ -227,6 +241,7 @@ func newRunOn(p *Problem, vector bool) *run {
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances
 	r.fillTask = r.fill
+	r.facesTask = r.addFaces
 	r.stepping = r.defaults()
 	return r
 }
@@ -326,14 +341,46 @@ func (r *run) firstStep(maxChange float64) float64 {
 // forParts calls fn for every part cell: its padded index c and its index
 // i among the part cells.
 func (r *run) forParts(fn func(c, i int, m *material)) {
-	for _, slab := range r.slabs {
-		for _, sp := range slab {
-			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-				fn(c, i, &r.mats[r.g.Region[c-r.pad]-1])
+	for w := range r.slabs {
+		r.slabParts(w, fn)
+	}
+}
+
+// eachSlab runs fn(w) for every slab w at once, on the workers. fn may
+// write r.acc[w] and the cells of slab w, nothing shared.
+func (r *run) eachSlab(fn func(w int)) { r.ws.run(fn) }
+
+// sumAcc returns the sums of the workers' shares a and b.
+func (r *run) sumAcc() (a, b float64) {
+	for _, p := range r.acc {
+		a += p.a
+		b += p.b
+	}
+	return a, b
+}
+
+// maxAcc returns the largest of the workers' shares a.
+func (r *run) maxAcc() float64 {
+	m := 0.0
+	for _, p := range r.acc {
+		m = max(m, p.a)
+	}
+	return m
+}
+
+// slabParts calls fn for every part cell of slab w.
+func (r *run) slabParts(w int, fn func(c, i int, m *material)) {
+	for _, sp := range r.slabs[w] {
+		m := &r.mats[r.g.Region[sp.lo-r.pad]-1]
+		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+			if c > sp.lo && r.g.Region[c-r.pad] != r.g.Region[c-1-r.pad] {
+				m = &r.mats[r.g.Region[c-r.pad]-1]
 			}
+			fn(c, i, m)
 		}
 	}
 }
+
 
 // initialState sets the solution and the two before it to the initial temperature.
 func (r *run) initialState() {
@@ -343,11 +390,11 @@ func (r *run) initialState() {
 // partValues copies the part cells of the whole-box t into dst, which
 // holds the part cells only.
 func (r *run) partValues(dst []float64) {
-	for _, slab := range r.slabs {
-		for _, sp := range slab {
+	r.eachSlab(func(w int) {
+		for _, sp := range r.slabs[w] {
 			copy(dst[sp.at:sp.at+sp.hi-sp.lo], r.t[sp.lo:sp.hi])
 		}
-	}
+	})
 }
 
 // memory returns the bytes of the run's arrays, the linear solver's included.
@@ -486,7 +533,9 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 	if dtPrev > 0 {
 		ratio = h / dtPrev
 	}
-	r.forParts(func(c, i int, _ *material) { r.t[c] = r.tn[i] + ratio*(r.tn[i]-r.tnm1[i]) })
+	r.eachSlab(func(w int) {
+		r.slabParts(w, func(c, i int, _ *material) { r.t[c] = r.tn[i] + ratio*(r.tn[i]-r.tnm1[i]) })
+	})
 	r.dt, r.coef = h, coef
 	for pass := 1; ; pass++ {
 		r.partValues(r.tstar)
@@ -498,7 +547,7 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 			r.conductancesSet = r.constantK
 		}
 		r.ws.run(r.fillTask)
-		r.addFaces()
+		r.ws.run(r.facesTask)
 		n, err := r.lin.solve(ctx, &r.st, r.b, r.t, r.stepping.Tolerance)
 		iterations += n
 		if err != nil {
@@ -507,13 +556,12 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 		if r.linear {
 			return iterations, nil
 		}
-		settled := true
-		r.forParts(func(c, i int, _ *material) {
-			if math.Abs(r.t[c]-r.tstar[i]) > r.newtonTol {
-				settled = false
-			}
+		r.eachSlab(func(w int) {
+			moved := 0.0
+			r.slabParts(w, func(c, i int, _ *material) { moved = max(moved, math.Abs(r.t[c]-r.tstar[i])) })
+			r.acc[w] = partial{a: moved}
 		})
-		if settled {
+		if r.maxAcc() <= r.newtonTol {
 			return iterations, nil
 		}
 		if pass == maxPasses {
@@ -619,10 +667,11 @@ func (r *run) fill(w int) {
 	}
 }
 
-// addFaces adds the linearised surface exchange of every boundary face.
-func (r *run) addFaces() {
+// addFaces adds the linearised surface exchange of the boundary faces of
+// slab w.
+func (r *run) addFaces(w int) {
 	g := r.g
-	for i := range g.Faces {
+	for _, i := range r.slabFaces[w] {
 		f := &g.Faces[i]
 		ph := r.phases[f.Group]
 		if ph.insulated() {
@@ -644,18 +693,33 @@ func (r *run) addFaces() {
 // solver's tolerance (the linearisation error is second order in the last
 // pass's change).
 func (r *run) boundaryFlow() float64 {
-	sum := 0.0
-	for i := range r.g.Faces {
-		c := r.pad + int(r.g.Faces[i].Cell)
-		sum += r.faceFlow[i] + r.faceConductance[i]*(r.tstar[r.facePart[i]]-r.t[c])
-	}
+	r.eachSlab(func(w int) {
+		sum := 0.0
+		for _, i := range r.slabFaces[w] {
+			c := r.pad + int(r.g.Faces[i].Cell)
+			sum += r.faceFlow[i] + r.faceConductance[i]*(r.tstar[r.facePart[i]]-r.t[c])
+		}
+		r.acc[w] = partial{a: sum}
+	})
+	sum, _ := r.sumAcc()
 	return sum
 }
 
 // storedEnergy returns Σ ρV·H(T) over the part, J since the start.
 func (r *run) storedEnergy() float64 {
-	sum := 0.0
-	r.forParts(func(c, _ int, m *material) { sum += m.rhoV * m.h.At(r.t[c]) })
+	ref := r.p.Initial // the enthalpy's zero
+	r.eachSlab(func(w int) {
+		sum := 0.0
+		r.slabParts(w, func(c, _ int, m *material) {
+			if m.constantCp != 0 {
+				sum += m.rhoV * m.constantCp * (r.t[c] - ref)
+			} else {
+				sum += m.rhoV * m.h.At(r.t[c])
+			}
+		})
+		r.acc[w] = partial{a: sum}
+	})
+	sum, _ := r.sumAcc()
 	return sum
 }
 
@@ -663,16 +727,22 @@ func (r *run) storedEnergy() float64 {
 // taken as half the largest distance between the solution and the linear
 // extrapolation of the two before (ratio = this step / the one before).
 func (r *run) localError(ratio float64) float64 {
-	lte := 0.0
-	r.forParts(func(c, i int, _ *material) {
-		lte = max(lte, math.Abs(r.t[c]-r.tn[i]-ratio*(r.tn[i]-r.tnm1[i])))
+	r.eachSlab(func(w int) {
+		lte := 0.0
+		r.slabParts(w, func(c, i int, _ *material) {
+			lte = max(lte, math.Abs(r.t[c]-r.tn[i]-ratio*(r.tn[i]-r.tnm1[i])))
+		})
+		r.acc[w] = partial{a: lte}
 	})
-	return lte / 2
+	return r.maxAcc() / 2
 }
 
 // largestChange returns max |T − T(n)| over the part.
 func (r *run) largestChange() float64 {
-	change := 0.0
-	r.forParts(func(c, i int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[i])) })
-	return change
+	r.eachSlab(func(w int) {
+		change := 0.0
+		r.slabParts(w, func(c, i int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[i])) })
+		r.acc[w] = partial{a: change}
+	})
+	return r.maxAcc()
 }

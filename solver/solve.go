@@ -133,8 +133,8 @@ type run struct {
 	phaseStarts               []float64
 
 	// operands of the assembly tasks
-	dt                               float64
-	coef                             bdf
+	dt                                          float64
+	coef                                        bdf
 	kTask, conductanceTask, fillTask, facesTask func(int)
 	// slabFaces lists, per slab, the faces of its cells, so that the
 	// face passes run on all workers without two touching one cell.
@@ -380,7 +380,6 @@ func (r *run) slabParts(w int, fn func(c, i int, m *material)) {
 		}
 	}
 }
-
 
 // initialState sets the solution and the two before it to the initial temperature.
 func (r *run) initialState() {

@@ -8,13 +8,13 @@ func haveVector() bool { return cpu.X86.HasAVX2 && cpu.X86.HasFMA }
 // The kernels of kernels_amd64.s; see there for what they expect.
 
 //go:noescape
-func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
 
 //go:noescape
-func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
+func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32)
 
 //go:noescape
-func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
+func productAVX(n, dn, ds, du, dd int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
 
 //go:noescape
 func axpyAVX(n int, w float32, src, dst *float32)

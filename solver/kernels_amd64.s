@@ -8,13 +8,11 @@
 // the cell index i; BX, DX, R8 and R15 are i−nx, i+nx, i+nxy and i−nxy.
 
 #define NEIGHBOUR_INDICES \
-	MOVQ nx+8(FP), DX; \
-	MOVQ nxy+16(FP), R8; \
-	XORQ AX, AX; \
-	XORQ BX, BX; \
-	SUBQ DX, BX; \
-	XORQ R15, R15; \
-	SUBQ R8, R15
+	MOVQ dn+8(FP), DX; \
+	MOVQ ds+16(FP), BX; \
+	MOVQ du+24(FP), R8; \
+	MOVQ dd+32(FP), R15; \
+	XORQ AX, AX
 
 #define STEP_INDICES(k) \
 	ADDQ $k, AX; \
@@ -59,22 +57,22 @@
 	VADDPD X10, X, X; \
 	VHADDPD X, X, X
 
-// func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+// func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
 // d ← cd·d + cr·(inv·(b + Σ g·x_nb) − x), dst = x + d.
-TEXT ·chebyshevAVX(SB), NOSPLIT, $0-96
+TEXT ·chebyshevAVX(SB), NOSPLIT, $0-112
 	MOVQ n+0(FP), CX
 	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
-	MOVQ x+24(FP), SI
-	MOVQ gx+32(FP), DI
-	MOVQ gy+40(FP), R9
-	MOVQ gz+48(FP), R10
-	MOVQ inv+56(FP), R11
-	MOVQ b+64(FP), R12
-	MOVQ d+72(FP), R13
-	MOVQ dst+80(FP), R14
-	VBROADCASTSS cr+88(FP), Y14
-	VBROADCASTSS cd+92(FP), Y15
+	MOVQ x+40(FP), SI
+	MOVQ gx+48(FP), DI
+	MOVQ gy+56(FP), R9
+	MOVQ gz+64(FP), R10
+	MOVQ inv+72(FP), R11
+	MOVQ b+80(FP), R12
+	MOVQ d+88(FP), R13
+	MOVQ dst+96(FP), R14
+	VBROADCASTSS cr+104(FP), Y14
+	VBROADCASTSS cd+108(FP), Y15
 	CMPQ AX, CX
 	JGE chebTail
 chebLoop:
@@ -113,20 +111,20 @@ chebDone:
 	VZEROUPPER
 	RET
 
-// func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32)
+// func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32)
 // d = scale·(b + Σ g·x_nb − x/inv).
-TEXT ·residualAVX(SB), NOSPLIT, $0-88
+TEXT ·residualAVX(SB), NOSPLIT, $0-104
 	MOVQ n+0(FP), CX
 	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
-	MOVQ x+24(FP), SI
-	MOVQ gx+32(FP), DI
-	MOVQ gy+40(FP), R9
-	MOVQ gz+48(FP), R10
-	MOVQ inv+56(FP), R11
-	MOVQ b+64(FP), R12
-	MOVQ scale+72(FP), R13
-	MOVQ d+80(FP), R14
+	MOVQ x+40(FP), SI
+	MOVQ gx+48(FP), DI
+	MOVQ gy+56(FP), R9
+	MOVQ gz+64(FP), R10
+	MOVQ inv+72(FP), R11
+	MOVQ b+80(FP), R12
+	MOVQ scale+88(FP), R13
+	MOVQ d+96(FP), R14
 	CMPQ AX, CX
 	JGE resTail
 resLoop:
@@ -159,18 +157,18 @@ resDone:
 	VZEROUPPER
 	RET
 
-// func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
+// func productAVX(n, dn, ds, du, dd int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
 // q = diag·p − Σ g·p_nb; returns Σ p·q.
-TEXT ·productAVX(SB), NOSPLIT, $0-80
+TEXT ·productAVX(SB), NOSPLIT, $0-96
 	MOVQ n+0(FP), CX
 	ANDQ $-4, CX
 	NEIGHBOUR_INDICES
-	MOVQ p+24(FP), SI
-	MOVQ gx+32(FP), DI
-	MOVQ gy+40(FP), R9
-	MOVQ gz+48(FP), R10
-	MOVQ diag+56(FP), R11
-	MOVQ q+64(FP), R12
+	MOVQ p+40(FP), SI
+	MOVQ gx+48(FP), DI
+	MOVQ gy+56(FP), R9
+	MOVQ gz+64(FP), R10
+	MOVQ diag+72(FP), R11
+	MOVQ q+80(FP), R12
 	VXORPD Y9, Y9, Y9
 	CMPQ AX, CX
 	JGE prodTail
@@ -220,7 +218,7 @@ prodTailLoop:
 	CMPQ AX, CX
 	JLT prodTailLoop
 prodDone:
-	VMOVSD X9, pq+72(FP)
+	VMOVSD X9, pq+88(FP)
 	VZEROUPPER
 	RET
 

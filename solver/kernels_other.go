@@ -6,15 +6,15 @@ package solver
 // the kernels below are never called.
 func haveVector() bool { return false }
 
-func chebyshevAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32) {
+func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 
-func residualAVX(n, nx, nxy int, x, gx, gy, gz, inv, b, scale, d *float32) {
+func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 
-func productAVX(n, nx, nxy int, p *float64, gx, gy, gz *float32, diag, q *float64) float64 {
+func productAVX(n, dn, ds, du, dd int, p *float64, gx, gy, gz *float32, diag, q *float64) float64 {
 	panic("solver: no vector kernels on this architecture")
 }
 

@@ -7,15 +7,25 @@ import (
 	"sync"
 )
 
-// span is a run [lo, hi) of consecutive part cells in one grid row, in
-// padded array indices. Loops run over spans so that cells outside the part
-// cost nothing; rowStart is the padded index of the row's first cell. at is
-// the index of cell lo among the part cells, in span order: arrays that no
-// neighbour reads hold the part cells only, cell lo+i at at+i.
+// span is a run of consecutive part cells in one grid row. Loops run over
+// spans so that cells outside the part cost nothing. The same cells sit
+// at three kinds of position:
+//   - [lo, hi) in whole-box arrays padded by a plane at each end (the
+//     solution, the conductivities, the grid's regions at lo − pad);
+//   - from cp on in the arrays of a layout (values whose neighbours a pass
+//     reads, face conductances): the neighbours of cell cp+i are at ±1
+//     along x and at cp+i+dn, +ds, +du, +dd north (y+1), south, up (z+1)
+//     and down;
+//   - from at on among the part cells, in span order, in arrays that no
+//     neighbour reads.
+//
+// x, y and z are the grid coordinates of cell lo.
 type span struct {
-	lo, hi, rowStart int
-	at               int
-	y, z             int
+	lo, hi         int
+	cp             int
+	dn, ds, du, dd int
+	at             int
+	x, y, z        int
 }
 
 // partIndex returns the index among the part cells of padded cell c, which
@@ -26,13 +36,11 @@ func partIndex(spans []span, c int) int {
 }
 
 // stencil is the 7-point operator (A·x)_c = diag_c·x_c − Σ g·x_neighbour:
-// diag over the part cells only (span.at), the conductances on padded
-// arrays over the whole grid box: gx[c] couples c and c+1, gy[c]
-// couples c and c+nx, gz[c] couples c and c+nx·ny, and a coefficient is 0
-// where either cell lies outside the part. Whole-box arrays keep the
-// neighbour arithmetic trivial; on sparse parts a layout of small bricks
-// holding only those that touch the part would save what they cost
-// outside it.
+// diag over the part cells only (span.at), the conductances in the
+// layout's arrays (span.cp): gx[c] couples c with its east neighbour,
+// gy[c] with its north and gz[c] with the one above, and a coefficient is
+// 0 where either cell lies outside the part. Operands of the product are
+// in the layout too.
 //
 // The face conductances are float32, rounded once when they are set: the
 // operator with the rounded values is exactly symmetric, and its diagonal
@@ -41,7 +49,6 @@ func partIndex(spans []span, c int) int {
 // arrays instead of copying them, and every product reads 12 bytes per
 // cell less.
 type stencil struct {
-	nx, nxy    int
 	diag       []float64
 	gx, gy, gz []float32
 	// vector tells the passes over this operator and its multigrid to use
@@ -49,12 +56,19 @@ type stencil struct {
 	vector bool
 }
 
-// times returns (A·x)_c for the part cell c whose part index is i.
-func (a *stencil) times(x []float64, c, i int) float64 {
-	nx, nxy := a.nx, a.nxy
-	return a.diag[i]*x[c] - float64(a.gx[c])*x[c+1] - float64(a.gx[c-1])*x[c-1] -
-		float64(a.gy[c])*x[c+nx] - float64(a.gy[c-nx])*x[c-nx] -
-		float64(a.gz[c])*x[c+nxy] - float64(a.gz[c-nxy])*x[c-nxy]
+// gather copies the part cells of the whole-box x into the layout array
+// p, on spans.
+func gather(spans []span, x, p []float64) {
+	for _, sp := range spans {
+		copy(p[sp.cp:sp.cp+sp.hi-sp.lo], x[sp.lo:sp.hi])
+	}
+}
+
+// sumG returns the sum of the six face conductances of cell c (a layout
+// position) of span sp.
+func (a *stencil) sumG(sp *span, c int) float64 {
+	return float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c+sp.ds]) +
+		float64(a.gz[c]) + float64(a.gz[c+sp.dd])
 }
 
 // linearSolver solves the symmetric positive definite system of one Newton
@@ -126,7 +140,7 @@ type partial struct {
 // parallel over z-slabs. The preconditioner is folded into the vector
 // updates (z = r/diag is never stored) to save memory traffic. It is the
 // plain reference the multigrid solver is measured against
-// (Stepping.Preconditioner "jacobi"). p is a whole-box array (the product
+// (Stepping.Preconditioner "jacobi"). p is in the layout (the product
 // reads its neighbours); r, q and invDiag hold the part cells only.
 type jacobiCG struct {
 	ws      *workers
@@ -143,9 +157,11 @@ type jacobiCG struct {
 	cells int
 	bytes float64 // moved so far
 
-	startTask, productTask, updateTask, directionTask func(int)
+	loadTask, startTask, firstDirectionTask, productTask, updateTask, directionTask func(int)
 }
 
+// newJacobiCG makes the solver for the part cells of slabs; size is the
+// length of the layout's arrays.
 func newJacobiCG(ws *workers, slabs [][]span, size int, mem *arrays) *jacobiCG {
 	cells := partCells(slabs)
 	s := &jacobiCG{
@@ -154,7 +170,9 @@ func newJacobiCG(ws *workers, slabs [][]span, size int, mem *arrays) *jacobiCG {
 		invDiag: grow[float64](mem, cells),
 		sums:    make([]partial, ws.count()),
 	}
+	s.loadTask = s.load
 	s.startTask = s.start
+	s.firstDirectionTask = s.firstDirection
 	s.productTask = s.product
 	s.updateTask = s.update
 	s.directionTask = s.direction
@@ -188,8 +206,10 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 	defer func() { s.a, s.b, s.x = nil, nil, nil }()
 
 	cells := float64(s.cells)
+	s.ws.run(s.loadTask)
 	rz, bb, rr := s.reduce(s.startTask)
-	s.bytes += (bytesStencil + 5*8) * cells
+	s.ws.run(s.firstDirectionTask)
+	s.bytes += (bytesStencil + 2*8 + 8 + 5*8 + 3*8) * cells
 	limit := tol * tol * bb
 	if rr <= limit {
 		return 0, nil
@@ -230,21 +250,34 @@ const bytesStencil = 8 + 3*4
 
 // start sets r = b − A·x and p = r/diag; sums r·r/diag, b·b and r·r.
 func (s *jacobiCG) start(w int) {
-	a, x, b, r, p := s.a, s.x, s.b, s.r, s.p
+	b, r := s.b, s.r
+	s.a.product(s.slabs[w], s.p, r) // r = A·x for now
 	var rz, bb, rr float64
 	for _, sp := range s.slabs[w] {
-		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			rc := b[i] - a.times(x, c, i)
+		for i := sp.at; i < sp.at+sp.hi-sp.lo; i++ {
+			rc := b[i] - r[i]
 			r[i] = rc
-			s.invDiag[i] = 1 / a.diag[i]
-			z := rc * s.invDiag[i]
-			p[c] = z
-			rz += rc * z
+			s.invDiag[i] = 1 / s.a.diag[i]
+			rz += rc * rc * s.invDiag[i]
 			bb += b[i] * b[i]
 			rr += rc * rc
 		}
 	}
 	s.sums[w] = partial{a: rz, b: bb, c: rr}
+}
+
+// load copies x into p, the product's operand, on slab w.
+func (s *jacobiCG) load(w int) { gather(s.slabs[w], s.x, s.p) }
+
+// firstDirection sets p = r/diag on slab w.
+func (s *jacobiCG) firstDirection(w int) {
+	for _, sp := range s.slabs[w] {
+		n := sp.hi - sp.lo
+		r, p, inv := s.r[sp.at:sp.at+n], s.p[sp.cp:sp.cp+n], s.invDiag[sp.at:sp.at+n]
+		for i := range r {
+			p[i] = r[i] * inv[i]
+		}
+	}
 }
 
 // product sets q = A·p and sums p·q.
@@ -253,22 +286,24 @@ func (s *jacobiCG) product(w int) { s.sums[w] = partial{a: s.a.product(s.slabs[w
 // product sets q = A·p on the cells of spans (q holding the part cells
 // only) and returns their sum of p·q.
 func (a *stencil) product(spans []span, p, q []float64) float64 {
-	nx, nxy := a.nx, a.nxy
 	var pq float64
 	for _, sp := range spans {
-		lo, n := sp.lo, sp.hi-sp.lo
+		c, n := sp.cp, sp.hi-sp.lo
+		dn, ds, du, dd := sp.dn, sp.ds, sp.du, sp.dd
 		if a.vector {
 			// Every cell the kernel reads, checked.
-			_, _, _ = p[lo-nxy:sp.hi+nxy], a.diag[sp.at:sp.at+n], q[sp.at:sp.at+n]
-			_, _, _ = a.gx[lo-1:sp.hi], a.gy[lo-nx:sp.hi], a.gz[lo-nxy:sp.hi]
-			pq += productAVX(n, nx, nxy, &p[lo], &a.gx[lo], &a.gy[lo], &a.gz[lo], &a.diag[sp.at], &q[sp.at])
+			_, _, _, _ = p[c-1:c+n+1], p[c+dn:c+dn+n], p[c+ds:c+ds+n], p[c+du:c+du+n]
+			_, _, _ = p[c+dd:c+dd+n], a.diag[sp.at:sp.at+n], q[sp.at:sp.at+n]
+			_, _, _ = a.gx[c-1:c+n], a.gy[c+ds:c+ds+n], a.gz[c+dd:c+dd+n]
+			_, _ = a.gy[c:c+n], a.gz[c:c+n]
+			pq += productAVX(n, dn, ds, du, dd, &p[c], &a.gx[c], &a.gy[c], &a.gz[c], &a.diag[sp.at], &q[sp.at])
 			continue
 		}
 		// Equal-length windows let the compiler drop the bounds checks.
-		pc, pw, pe, ps, pn, pd, pu := p[lo:lo+n], p[lo-1:lo-1+n], p[lo+1:lo+1+n], p[lo-nx:lo-nx+n], p[lo+nx:lo+nx+n],
-			p[lo-nxy:lo-nxy+n], p[lo+nxy:lo+nxy+n]
-		diag, gx, gxw, gy, gys, gz, gzd := a.diag[sp.at:sp.at+n], a.gx[lo:lo+n], a.gx[lo-1:lo-1+n], a.gy[lo:lo+n], a.gy[lo-nx:lo-nx+n],
-			a.gz[lo:lo+n], a.gz[lo-nxy:lo-nxy+n]
+		pc, pw, pe, ps, pn, pd, pu := p[c:c+n], p[c-1:c-1+n], p[c+1:c+1+n], p[c+ds:c+ds+n], p[c+dn:c+dn+n],
+			p[c+dd:c+dd+n], p[c+du:c+du+n]
+		diag, gx, gxw, gy, gys, gz, gzd := a.diag[sp.at:sp.at+n], a.gx[c:c+n], a.gx[c-1:c-1+n], a.gy[c:c+n], a.gy[c+ds:c+ds+n],
+			a.gz[c:c+n], a.gz[c+dd:c+dd+n]
 		qc := q[sp.at : sp.at+n]
 		pw, pe, ps, pn, pd, pu = pw[:len(pc)], pe[:len(pc)], ps[:len(pc)], pn[:len(pc)], pd[:len(pc)], pu[:len(pc)]
 		diag, gx, gxw, gy, gys, gz, gzd, qc = diag[:len(pc)], gx[:len(pc)], gxw[:len(pc)], gy[:len(pc)], gys[:len(pc)], gz[:len(pc)], gzd[:len(pc)], qc[:len(pc)]
@@ -290,7 +325,7 @@ func (s *jacobiCG) update(w int) {
 	for _, sp := range s.slabs[w] {
 		// Equal-length reslices let the compiler drop the bounds checks.
 		n := sp.hi - sp.lo
-		x, r, p, q, inv := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], s.invDiag[sp.at:sp.at+n]
+		x, r, p, q, inv := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n:sp.at+n], s.p[sp.cp:sp.cp+n], s.q[sp.at:sp.at+n], s.invDiag[sp.at:sp.at+n]
 		for i := range r {
 			x[i] += alpha * p[i]
 			rc := r[i] - alpha*q[i]
@@ -307,7 +342,7 @@ func (s *jacobiCG) direction(w int) {
 	beta := s.beta
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
-		r, p, inv := s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.invDiag[sp.at:sp.at+n]
+		r, p, inv := s.r[sp.at:sp.at+n], s.p[sp.cp:sp.cp+n], s.invDiag[sp.at:sp.at+n]
 		for i := range r {
 			p[i] = r[i]*inv[i] + beta*p[i]
 		}

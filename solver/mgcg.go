@@ -12,7 +12,7 @@ const maxMultigridIterations = 500
 // multigridCG is conjugate gradients preconditioned by one multigrid
 // V-cycle per iteration, parallel over z-slabs. The preconditioner works in
 // float32, so it is not exactly symmetric; β takes the Polak–Ribière form
-// (flexible CG), which tolerates that. p is a whole-box array (the product
+// (flexible CG), which tolerates that. p is in the layout (the product
 // reads its neighbours); r and q hold the part cells only.
 type multigridCG struct {
 	ws      *workers
@@ -28,7 +28,7 @@ type multigridCG struct {
 	b, x        []float64
 	alpha, beta float64
 
-	fromStencilTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
+	fromStencilTask, loadTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
 }
 
 func newMultigridCG(ws *workers, slabs [][]span, a *stencil, dims [3]int, part func(c int) bool, size int, mem *arrays) *multigridCG {
@@ -43,6 +43,7 @@ func newMultigridCG(ws *workers, slabs [][]span, a *stencil, dims [3]int, part f
 		sums: make([]partial, ws.count()),
 	}
 	s.fromStencilTask = s.fromStencil
+	s.loadTask = func(w int) { gather(s.slabs[w], s.x, s.p) }
 	s.startTask = s.start
 	s.productTask = s.product
 	s.updateTask = s.update
@@ -69,7 +70,7 @@ func (s *multigridCG) reduce(task func(int)) (a, b float64) {
 
 // Bytes per part cell of the CG passes (float64 = 8, float32 = 4).
 const (
-	bytesStart     = bytesStencil + 3*8 + 4 // x, b, r; the preconditioner's b
+	bytesStart     = bytesStencil + 5*8 + 4 // x in, p out and in, b, r; the preconditioner's b
 	bytesProduct   = bytesStencil + 2*8     // p, q
 	bytesUpdate    = 6*8 + 4                // x, r read and written, p, q; the preconditioner's b
 	bytesDot       = 2*8 + 4                // r, q, z
@@ -82,6 +83,7 @@ func (s *multigridCG) solve(ctx context.Context, a *stencil, b, x []float64, tol
 	cells := float64(s.cells)
 
 	s.mg.setup(a, s.fromStencilTask)
+	s.ws.run(s.loadTask)
 	bb, rr := s.reduce(s.startTask)
 	s.bytes += bytesStart * cells
 	limit := tol * tol * bb
@@ -126,12 +128,10 @@ func (s *multigridCG) solve(ctx context.Context, a *stencil, b, x []float64, tol
 // on slab w; the level shares the stencil's conductances.
 func (s *multigridCG) fromStencil(w int) {
 	a, l := s.a, s.mg.levels[0]
-	nx, nxy := a.nx, a.nxy
 	hi := 0.0
 	for _, sp := range s.slabs[w] {
-		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			g := float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c-nx]) +
-				float64(a.gz[c]) + float64(a.gz[c-nxy])
+		for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
+			g := a.sumG(&sp, c)
 			l.inv[i] = float32(1 / a.diag[i])
 			l.d[c] = float32(a.diag[i] - g)
 			hi = max(hi, 1+g/a.diag[i])
@@ -143,7 +143,7 @@ func (s *multigridCG) fromStencil(w int) {
 // start sets r = b − A·x and hands r to the preconditioner; sums b·b and r·r.
 func (s *multigridCG) start(w int) {
 	b, r, pb := s.b, s.r, s.mg.levels[0].b
-	s.a.product(s.slabs[w], s.x, r) // r = A·x for now
+	s.a.product(s.slabs[w], s.p, r) // r = A·x for now (p holds x)
 	var bb, rr float64
 	for _, sp := range s.slabs[w] {
 		for i := sp.at; i < sp.at+sp.hi-sp.lo; i++ {
@@ -164,7 +164,7 @@ func (s *multigridCG) update(w int) {
 	var rr float64
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
-		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.lo:sp.hi], s.q[sp.at:sp.at+n], pb[sp.at:sp.at+n]
+		x, r, p, q, rb := s.x[sp.lo:sp.hi], s.r[sp.at:sp.at+n], s.p[sp.cp:sp.cp+n], s.q[sp.at:sp.at+n], pb[sp.at:sp.at+n]
 		x, p, q, rb = x[:len(r)], p[:len(r)], q[:len(r)], rb[:len(r)]
 		if s.a.vector {
 			rr += updateAVX(n, alpha, &x[0], &p[0], &r[0], &q[0], &rb[0])
@@ -186,7 +186,7 @@ func (s *multigridCG) dot(w int) {
 	var rz, zq float64
 	for _, sp := range s.slabs[w] {
 		n := sp.hi - sp.lo
-		r, q, zs := s.r[sp.at:sp.at+n], s.q[sp.at:sp.at+n], z[sp.lo:sp.hi]
+		r, q, zs := s.r[sp.at:sp.at+n], s.q[sp.at:sp.at+n], z[sp.cp:sp.cp+n]
 		q, zs = q[:len(r)], zs[:len(r)]
 		if s.a.vector {
 			a, b := dotAVX(n, &r[0], &zs[0], &q[0])
@@ -206,7 +206,8 @@ func (s *multigridCG) dot(w int) {
 func (s *multigridCG) direction(w int) {
 	beta, z := s.beta, s.mg.levels[0].x
 	for _, sp := range s.slabs[w] {
-		p, zs := s.p[sp.lo:sp.hi], z[sp.lo:sp.hi]
+		n := sp.hi - sp.lo
+		p, zs := s.p[sp.cp:sp.cp+n], z[sp.cp:sp.cp+n]
 		zs = zs[:len(p)]
 		if s.a.vector {
 			directionAVX(len(p), beta, &zs[0], &p[0])

@@ -40,17 +40,17 @@ const (
 	smoothRange = 8.0
 )
 
-// mgLevel is one grid of the hierarchy: a padded box laid out like the
-// solver's own arrays, float32 coefficients of the 7-point operator, and the
-// part cells as spans in per-worker slabs.
+// mgLevel is one grid of the hierarchy: float32 coefficients of the
+// 7-point operator in a layout of its own (the finest shares the
+// solver's), and the part cells as spans in per-worker slabs.
 type mgLevel struct {
-	n       [3]int
-	nx, nxy int
-	factor  [3]int // coarsening factor towards the next level, 1 or 2
-	slabs   [][]span
-	planes  [][][]span // each slab's spans by z-plane, for the wavefronts
-	cells   int
-	next    *mgLevel // coarser level; nil on the coarsest
+	n      [3]int
+	lay    *layout // where the arrays that neighbours read keep each cell
+	factor [3]int  // coarsening factor towards the next level, 1 or 2
+	slabs  [][]span
+	planes [][][]span // each slab's spans by z-plane, for the wavefronts
+	cells  int
+	next   *mgLevel // coarser level; nil on the coarsest
 
 	// inv is 1/diagonal: the smoother then needs no division. gx, gy, gz
 	// are the finest level's stencil's own arrays (ownsConductances false).
@@ -72,8 +72,11 @@ type mgLevel struct {
 	// next) are the blended rows of prolong and restrict, two cells longer
 	// than a row of the level they blend, their ends 0.
 	coarseRow, fineRow [][]float32
+	// coarsenSums (per slab of the next level) are coarsen's float64 sums
+	// over a coarse span: own terms and the three conductances.
+	coarsenSums [][4][]float64
 	// inv, b and scale hold the part cells only (span.at): no neighbour
-	// reads them. The others span the padded box.
+	// reads them. The others are in the level's layout (span.cp).
 
 	// Chebyshev coefficients for this set-up: step s updates
 	// d ← cd[s]·d + cr[s]·D⁻¹(b − A·x).
@@ -90,13 +93,10 @@ type mgLevel struct {
 // newLevel makes a level of n cells whose part cells part tells; a level
 // built from a stencil (the finest) shares its conductances.
 func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays, vector bool) *mgLevel {
-	nxy := n[0] * n[1]
-	size := n[0]*n[1]*n[2] + 2*nxy
-	l := &mgLevel{
-		n: n, nx: n[0], nxy: nxy, vector: vector,
-		slabs: partitionMask(n, func(c int) bool { return part[c] }, nxy, threads),
-		x:     grow[float32](mem, size), xNext: grow[float32](mem, size), d: grow[float32](mem, size),
-	}
+	l := &mgLevel{n: n, vector: vector}
+	l.slabs, l.lay = partitionMask(n, func(c int) bool { return part[c] }, 0, threads, a == nil)
+	size := l.lay.size
+	l.x, l.xNext, l.d = grow[float32](mem, size), grow[float32](mem, size), grow[float32](mem, size)
 	l.cells = partCells(l.slabs)
 	l.inv, l.b = grow[float32](mem, l.cells), grow[float32](mem, l.cells)
 	if a != nil {
@@ -134,7 +134,7 @@ type multigrid struct {
 	ws     *workers
 	levels []*mgLevel
 	// coarsest-level Cholesky factor (lower triangle, row-major) over the
-	// cells listed in coarseCells (padded indices)
+	// cells listed in coarseCells (layout positions, in span order)
 	coarseCells []int
 	chol, work  []float64
 	moved       float64 // bytes moved so far, by the traffic model below
@@ -173,6 +173,11 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays
 		}
 		for range c.slabs {
 			l.fineRow = append(l.fineRow, make([]float32, l.n[0]+3))
+			var sums [4][]float64
+			for i := range sums {
+				sums[i] = make([]float64, cn[0])
+			}
+			l.coarsenSums = append(l.coarsenSums, sums)
 		}
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
@@ -180,7 +185,7 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays
 	}
 	for _, slab := range l.slabs {
 		for _, sp := range slab {
-			for c := sp.lo; c < sp.hi; c++ {
+			for c := sp.cp; c < sp.cp+sp.hi-sp.lo; c++ {
 				mg.coarseCells = append(mg.coarseCells, c)
 			}
 		}
@@ -196,7 +201,7 @@ func (mg *multigrid) interpolationScale(l *mgLevel) {
 	c := l.next
 	for _, slab := range c.slabs {
 		for _, sp := range slab {
-			for i := sp.lo; i < sp.hi; i++ {
+			for i := sp.cp; i < sp.cp+sp.hi-sp.lo; i++ {
 				c.x[i] = 1
 			}
 		}
@@ -207,7 +212,7 @@ func (mg *multigrid) interpolationScale(l *mgLevel) {
 	mg.run(l, l.prolongTask)
 	for _, slab := range l.slabs {
 		for _, sp := range slab {
-			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+			for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
 				l.scale[i], l.x[c] = 1/l.x[c], 0
 			}
 		}
@@ -231,11 +236,11 @@ func (mg *multigrid) run(l *mgLevel, task func(int)) {
 func (mg *multigrid) memory() int {
 	bytes := 8 * (len(mg.chol) + len(mg.work) + len(mg.coarseCells))
 	for _, l := range mg.levels {
-		boxArrays := 3 // x, xNext, d
+		layoutArrays := 3 // x, xNext, d
 		if l.ownsConductances {
-			boxArrays += 3
+			layoutArrays += 3
 		}
-		bytes += 4 * (boxArrays*len(l.x) + len(l.inv) + len(l.b) + len(l.scale))
+		bytes += 4 * (layoutArrays*len(l.x) + len(l.inv) + len(l.b) + len(l.scale))
 	}
 	return bytes
 }
@@ -335,12 +340,12 @@ func win(v []float32, at, n int) []float32 { return v[at : at+n : at+n] }
 
 // rows returns the views of span sp with x as the values.
 func (l *mgLevel) rows(sp span, x []float32) rows {
-	lo, n, nx, nxy := sp.lo, sp.hi-sp.lo, l.nx, l.nxy
+	c, n := sp.cp, sp.hi-sp.lo
 	return rows{
-		x: win(x, lo, n), xw: win(x, lo-1, n), xe: win(x, lo+1, n), xs: win(x, lo-nx, n), xn: win(x, lo+nx, n),
-		xd: win(x, lo-nxy, n), xu: win(x, lo+nxy, n),
-		inv: win(l.inv, sp.at, n), gx: win(l.gx, lo, n), gxw: win(l.gx, lo-1, n), gy: win(l.gy, lo, n),
-		gys: win(l.gy, lo-nx, n), gz: win(l.gz, lo, n), gzd: win(l.gz, lo-nxy, n),
+		x: win(x, c, n), xw: win(x, c-1, n), xe: win(x, c+1, n), xs: win(x, c+sp.ds, n), xn: win(x, c+sp.dn, n),
+		xd: win(x, c+sp.dd, n), xu: win(x, c+sp.du, n),
+		inv: win(l.inv, sp.at, n), gx: win(l.gx, c, n), gxw: win(l.gx, c-1, n), gy: win(l.gy, c, n),
+		gys: win(l.gy, c+sp.ds, n), gz: win(l.gz, c, n), gzd: win(l.gz, c+sp.dd, n),
 	}
 }
 
@@ -349,13 +354,11 @@ func (l *mgLevel) rows(sp span, x []float32) rows {
 // the cells and of their lower neighbours, the inverse diagonal) and
 // returns the first of each, for the AVX2 kernels.
 func (l *mgLevel) reach(sp span, x []float32) (xp, gx, gy, gz, inv *float32) {
-	lo, hi := sp.lo, sp.hi
-	_ = x[lo-l.nxy : hi+l.nxy]
-	_ = l.gx[lo-1 : hi]
-	_ = l.gy[lo-l.nx : hi]
-	_ = l.gz[lo-l.nxy : hi]
-	_ = l.inv[sp.at : sp.at+hi-lo]
-	return &x[lo], &l.gx[lo], &l.gy[lo], &l.gz[lo], &l.inv[sp.at]
+	c, n := sp.cp, sp.hi-sp.lo
+	_, _, _, _, _ = x[c-1:c+n+1], x[c+sp.dn:c+sp.dn+n], x[c+sp.ds:c+sp.ds+n], x[c+sp.du:c+sp.du+n], x[c+sp.dd:c+sp.dd+n]
+	_, _, _ = l.gx[c-1:c+n], l.gy[c+sp.ds:c+sp.ds+n], l.gz[c+sp.dd:c+sp.dd+n]
+	_, _, _ = l.gy[c:c+n], l.gz[c:c+n], l.inv[sp.at:sp.at+n]
+	return &x[c], &l.gx[c], &l.gy[c], &l.gz[c], &l.inv[sp.at]
 }
 
 // smoothFromZero runs the first Chebyshev step from x = 0 on spans:
@@ -365,7 +368,7 @@ func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
-		inv, d, next := win(l.inv, sp.at, n)[:len(b)], win(l.d, sp.lo, n)[:len(b)], win(dst, sp.lo, n)[:len(b)]
+		inv, d, next := win(l.inv, sp.at, n)[:len(b)], win(l.d, sp.cp, n)[:len(b)], win(dst, sp.cp, n)[:len(b)]
 		for i := range b {
 			v := cr * b[i] * inv[i]
 			d[i], next[i] = v, v
@@ -380,10 +383,10 @@ func (l *mgLevel) smooth(spans []span, step int, src, dst []float32) {
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
-		d, next := win(l.d, sp.lo, n)[:len(b)], win(dst, sp.lo, n)[:len(b)]
+		d, next := win(l.d, sp.cp, n)[:len(b)], win(dst, sp.cp, n)[:len(b)]
 		if l.vector {
 			x, gx, gy, gz, inv := l.reach(sp, src)
-			chebyshevAVX(n, l.nx, l.nxy, x, gx, gy, gz, inv, &b[0], &d[0], &next[0], cr, cd)
+			chebyshevAVX(n, sp.dn, sp.ds, sp.du, sp.dd, x, gx, gy, gz, inv, &b[0], &d[0], &next[0], cr, cd)
 			continue
 		}
 		a := l.rows(sp, src)
@@ -405,10 +408,10 @@ func (l *mgLevel) residual(spans []span, src []float32) {
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
-		d, scale := win(l.d, sp.lo, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
+		d, scale := win(l.d, sp.cp, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
 		if l.vector {
 			x, gx, gy, gz, inv := l.reach(sp, src)
-			residualAVX(n, l.nx, l.nxy, x, gx, gy, gz, inv, &b[0], &scale[0], &d[0])
+			residualAVX(n, sp.dn, sp.ds, sp.du, sp.dd, x, gx, gy, gz, inv, &b[0], &scale[0], &d[0])
 			continue
 		}
 		a := l.rows(sp, src)
@@ -455,12 +458,14 @@ func (l *mgLevel) prolong(w int, spans []span) {
 	for _, sp := range spans {
 		y0, y1, wy0, wy1 := interpolation(sp.y, f[1], c.n[1])
 		z0, z1, wz0, wz1 := interpolation(sp.z, f[2], c.n[2])
-		base := c.nxy // padding
-		r00, r01 := base+c.nx*(y0+c.n[1]*z0), base+c.nx*(y0+c.n[1]*z1)
-		r10, r11 := base+c.nx*(y1+c.n[1]*z0), base+c.nx*(y1+c.n[1]*z1)
-		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
-		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
+		// The coarse rows keep every cell read here: the parents' row holds
+		// the parents and one cell beyond, the rows around it as much.
+		first, last := sp.x, sp.x+sp.hi-sp.lo-1
 		lo, hi := max(0, first/f[0]-1), min(c.n[0], last/f[0]+2)
+		cl := c.lay
+		r00, r01 := cl.neighbour(cl.row(y0, z0), lo), cl.neighbour(cl.row(y0, z1), lo)
+		r10, r11 := cl.neighbour(cl.row(y1, z0), lo), cl.neighbour(cl.row(y1, z1), lo)
+		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
 		b := row[lo+1 : hi+1]
 		clear(b)
 		for _, t := range [4]struct {
@@ -468,10 +473,10 @@ func (l *mgLevel) prolong(w int, spans []span) {
 			at int
 		}{{w00, r00}, {w01, r01}, {w10, r10}, {w11, r11}} {
 			if t.w != 0 {
-				axpy(l.vector, t.w, cx[t.at+lo:t.at+hi], b)
+				axpy(l.vector, t.w, cx[t.at:t.at+hi-lo], b)
 			}
 		}
-		xs, sc := x[sp.lo:sp.hi], scale[sp.at:sp.at+sp.hi-sp.lo]
+		xs, sc := x[sp.cp:sp.cp+sp.hi-sp.lo], scale[sp.at:sp.at+sp.hi-sp.lo]
 		sc = sc[:len(xs)]
 		if f[0] == 1 {
 			r := row[first+1 : last+2]
@@ -535,21 +540,22 @@ func (l *mgLevel) restrict(w int) {
 	for _, sp := range c.slabs[w] {
 		ys, wys, ny := restriction(sp.y, f[1], l.n[1])
 		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
-		var rowAt [16]int
-		var rowWeight [16]float32
-		m := 0
+		first, last := sp.x, sp.x+sp.hi-sp.lo-1
+		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
+		clear(row[lo+1 : hi+1])
+		// Blend the fine rows, each over the cells its layout keeps: the
+		// residual is 0 at every other cell.
 		for a := range nz {
 			for b := range ny {
-				rowAt[m], rowWeight[m] = l.nxy+l.nx*(ys[b]+l.n[1]*zs[a]), wzs[a]*wys[b]
-				m++
+				r := l.lay.row(ys[b], zs[a])
+				for _, rn := range l.lay.runs[l.lay.first[r]:l.lay.first[r+1]] {
+					from, to := max(lo, int(rn.lo)), min(hi, int(rn.hi))
+					if from < to {
+						at := int(rn.pos) - int(rn.lo)
+						axpy(l.vector, wzs[a]*wys[b], d[at+from:at+to], row[from+1:to+1])
+					}
+				}
 			}
-		}
-		first, last := sp.lo-sp.rowStart, sp.hi-1-sp.rowStart
-		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
-		b := row[lo+1 : hi+1]
-		clear(b)
-		for r := range m {
-			axpy(l.vector, rowWeight[r], d[rowAt[r]+lo:rowAt[r]+hi], b)
 		}
 		out := c.b[sp.at : sp.at+sp.hi-sp.lo]
 		if f[0] == 1 {
@@ -570,32 +576,46 @@ func (l *mgLevel) coarsen(w int) {
 	c := l.next
 	f := l.factor
 	own := l.d
+	sums := l.coarsenSums[w]
 	for _, sp := range c.slabs[w] {
-		J, K := sp.y, sp.z
-		for I := sp.lo; I < sp.hi; I++ {
-			ci := I - sp.rowStart
-			var sum, sx, sy, sz float64
-			for k := f[2] * K; k < min(f[2]*K+f[2], l.n[2]); k++ {
-				for j := f[1] * J; j < min(f[1]*J+f[1], l.n[1]); j++ {
-					row := l.nxy + l.nx*(j+l.n[1]*k)
-					for i := f[0] * ci; i < min(f[0]*ci+f[0], l.n[0]); i++ {
-						sum += float64(own[row+i])
-						if i == f[0]*ci+f[0]-1 {
-							sx += float64(l.gx[row+i])
+		J, K, n := sp.y, sp.z, sp.hi-sp.lo
+		sum, sx, sy, sz := sums[0][:n], sums[1][:n], sums[2][:n], sums[3][:n]
+		clear(sum)
+		clear(sx)
+		clear(sy)
+		clear(sz)
+		// The children of the span's cells, row by row; the layout keeps
+		// every child of a coarse part cell (it keeps the rows around each
+		// part cell), and those outside the part hold 0.
+		for k := f[2] * K; k < min(f[2]*K+f[2], l.n[2]); k++ {
+			for j := f[1] * J; j < min(f[1]*J+f[1], l.n[1]); j++ {
+				r := l.lay.row(j, k)
+				lastY, lastZ := j == f[1]*J+f[1]-1, k == f[2]*K+f[2]-1
+				lo, hi := f[0]*sp.x, min(f[0]*(sp.x+n), l.n[0]) // the children along x
+				for _, rn := range l.lay.runs[l.lay.first[r]:l.lay.first[r+1]] {
+					for i := max(lo, int(rn.lo)); i < min(hi, int(rn.hi)); i++ {
+						I := i/f[0] - sp.x
+						at := int(rn.pos) + i - int(rn.lo)
+						sum[I] += float64(own[at])
+						if i%f[0] == f[0]-1 {
+							sx[I] += float64(l.gx[at])
 						}
-						if j == f[1]*J+f[1]-1 {
-							sy += float64(l.gy[row+i])
+						if lastY {
+							sy[I] += float64(l.gy[at])
 						}
-						if k == f[2]*K+f[2]-1 {
-							sz += float64(l.gz[row+i])
+						if lastZ {
+							sz[I] += float64(l.gz[at])
 						}
 					}
 				}
 			}
-			c.d[I] = float32(sum)
+		}
+		for I := range n {
+			at := sp.cp + I
+			c.d[at] = float32(sum[I])
 			// A fine conductance across the box's end is 0, so the
 			// coarse one there comes out 0 as it must.
-			c.gx[I], c.gy[I], c.gz[I] = float32(sx/float64(f[0])), float32(sy/float64(f[1])), float32(sz/float64(f[2]))
+			c.gx[at], c.gy[at], c.gz[at] = float32(sx[I]/float64(f[0])), float32(sy[I]/float64(f[1])), float32(sz[I]/float64(f[2]))
 		}
 	}
 }
@@ -603,12 +623,11 @@ func (l *mgLevel) coarsen(w int) {
 // diagonal sets inv = 1/(own terms + face conductances) on slab w and finds
 // the slab's Gershgorin bound of D⁻¹A, 1 + Σg/diag.
 func (l *mgLevel) diagonal(w int) {
-	nx, nxy := l.nx, l.nxy
 	hi := 0.0
 	for _, sp := range l.slabs[w] {
-		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
-			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c-nx]) +
-				float64(l.gz[c]) + float64(l.gz[c-nxy])
+		for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
+			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c+sp.ds]) +
+				float64(l.gz[c]) + float64(l.gz[c+sp.dd])
 			diag := float64(l.d[c]) + g
 			l.inv[i] = float32(1 / diag)
 			hi = max(hi, 1+g/diag)
@@ -624,7 +643,7 @@ func (mg *multigrid) factorCoarsest() {
 	m := len(cells)
 	a := mg.chol
 	clear(a)
-	pos := func(c int) int { // row of padded cell c, or -1 outside the part
+	pos := func(c int) int { // row of the cell at position c, or -1 outside the part
 		for i, v := range cells {
 			if v == c {
 				return i
@@ -632,15 +651,20 @@ func (mg *multigrid) factorCoarsest() {
 		}
 		return -1
 	}
-	for i, c := range cells {
-		a[i*m+i] = 1 / float64(l.inv[i]) // coarseCells lists the cells in span order
-		for _, nb := range [3]struct {
-			off int
-			g   []float32
-		}{{1, l.gx}, {l.nx, l.gy}, {l.nxy, l.gz}} {
-			if g := float64(nb.g[c]); g != 0 {
-				if j := pos(c + nb.off); j >= 0 {
-					a[max(i, j)*m+min(i, j)] = -g
+	i := 0 // coarseCells lists the cells in span order
+	for _, slab := range l.slabs {
+		for _, sp := range slab {
+			for c := sp.cp; c < sp.cp+sp.hi-sp.lo; c, i = c+1, i+1 {
+				a[i*m+i] = 1 / float64(l.inv[i])
+				for _, nb := range [3]struct {
+					off int
+					g   []float32
+				}{{1, l.gx}, {sp.dn, l.gy}, {sp.du, l.gz}} {
+					if g := float64(nb.g[c]); g != 0 {
+						if j := pos(c + nb.off); j >= 0 {
+							a[max(i, j)*m+min(i, j)] = -g
+						}
+					}
 				}
 			}
 		}

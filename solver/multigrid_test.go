@@ -54,15 +54,17 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 	lambda = math.Inf(1)
 	var rr, bb float64
 	a := &r.st
+	inLayout := make([]float64, len(r.st.gx)) // the solution in the layout
 	for _, slab := range r.slabs {
-		a.product(slab, r.t, ax)
+		gather(slab, r.t, inLayout)
+	}
+	for _, slab := range r.slabs {
+		a.product(slab, inLayout, ax)
 		for _, sp := range slab {
-			for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
+			for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
 				rr += (r.b[i] - ax[i]) * (r.b[i] - ax[i])
 				bb += r.b[i] * r.b[i]
-				own := a.diag[i] - float64(a.gx[c]) - float64(a.gx[c-1]) - float64(a.gy[c]) - float64(a.gy[c-a.nx]) -
-					float64(a.gz[c]) - float64(a.gz[c-a.nxy])
-				lambda = min(lambda, own)
+				lambda = min(lambda, a.diag[i]-a.sumG(&sp, c))
 			}
 		}
 	}

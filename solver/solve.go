@@ -152,13 +152,12 @@ func newRun(p *Problem) *run { return newRunOn(p, haveVector()) }
 // loops the kernels are checked against).
 func newRunOn(p *Problem, vector bool) *run {
 	g := p.Grid
-	nx, nxy := g.N[0], g.N[0]*g.N[1]
+	nxy := g.N[0] * g.N[1]
 	size := g.CellCount() + 2*nxy
 	mem := &arrays{}
 	r := &run{
 		p: p, g: g, pad: nxy, stepping: p.Stepping,
-		st: stencil{nx: nx, nxy: nxy, vector: vector,
-			gx: grow[float32](mem, size), gy: grow[float32](mem, size), gz: grow[float32](mem, size)},
+		st:       stencil{vector: vector},
 		t:        grow[float64](mem, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
@@ -214,7 +213,9 @@ func newRunOn(p *Problem, vector bool) *run {
 	if threads == 0 {
 		threads = runtime.GOMAXPROCS(0)
 	}
-	r.slabs = partition(g, r.pad, threads)
+	var lay *layout
+	r.slabs, lay = partition(g, r.pad, threads)
+	r.st.gx, r.st.gy, r.st.gz = grow[float32](mem, lay.size), grow[float32](mem, lay.size), grow[float32](mem, lay.size)
 	cells := partCells(r.slabs)
 	r.b, r.st.diag = grow[float64](mem, cells), grow[float64](mem, cells)
 	r.tn, r.tnm1, r.tstar = grow[float64](mem, cells), grow[float64](mem, cells), grow[float64](mem, cells)
@@ -234,9 +235,9 @@ func newRunOn(p *Problem, vector bool) *run {
 	r.acc = make([]partial, len(r.slabs))
 	r.ws = newWorkers(len(r.slabs))
 	if p.Stepping.Preconditioner == Jacobi {
-		r.lin = newJacobiCG(r.ws, r.slabs, size, mem)
+		r.lin = newJacobiCG(r.ws, r.slabs, lay.size, mem)
 	} else {
-		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, size, mem)
+		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, lay.size, mem)
 	}
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances
@@ -248,14 +249,18 @@ func newRunOn(p *Problem, vector bool) *run {
 
 // partition finds the runs of part cells of g and splits the grid into at
 // most `threads` slabs of whole z-planes holding about equal numbers of part cells.
-func partition(g *mesh.Grid, pad, threads int) [][]span {
-	return partitionMask(g.N, func(c int) bool { return g.Region[c] != 0 }, pad, threads)
+func partition(g *mesh.Grid, pad, threads int) ([][]span, *layout) {
+	return partitionMask(g.N, func(c int) bool { return g.Region[c] != 0 }, pad, threads, false)
 }
 
 // partitionMask is partition for a box of n cells whose part cells
-// inPart tells (by unpadded index).
-func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int) [][]span {
+// inPart tells (by unpadded index), with a wide layout for a coarse
+// multigrid level. It returns the spans with their
+// positions in the box padded by pad cells at each end (span.lo, hi) and
+// in the layout it builds (span.cp and the deltas).
+func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int, wide bool) ([][]span, *layout) {
 	nx, ny, nz := n[0], n[1], n[2]
+	lay := newLayout(n, inPart, wide)
 	planes := make([][]span, nz)
 	total := 0
 	for z := range nz {
@@ -270,7 +275,12 @@ func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int) [][]span
 				for x < nx && inPart(row+x) {
 					x++
 				}
-				planes[z] = append(planes[z], span{lo: pad + row + lo, hi: pad + row + x, rowStart: pad + row, at: total, y: y, z: z})
+				cp := lay.neighbour(lay.row(y, z), lo)
+				planes[z] = append(planes[z], span{
+					lo: pad + row + lo, hi: pad + row + x, cp: cp, at: total, x: lo, y: y, z: z,
+					dn: lay.neighbour(lay.row(y+1, z), lo) - cp, ds: lay.neighbour(lay.row(y-1, z), lo) - cp,
+					du: lay.neighbour(lay.row(y, z+1), lo) - cp, dd: lay.neighbour(lay.row(y, z-1), lo) - cp,
+				})
 				total += x - lo
 			}
 		}
@@ -288,7 +298,7 @@ func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int) [][]span
 			w++
 		}
 	}
-	return slabs
+	return slabs, lay
 }
 
 // defaults fills unset stepping fields.
@@ -600,7 +610,7 @@ func (r *run) cellK(c int) float64 {
 // series of two half cells, k·Δx²/(Δx/2) each.
 func (r *run) faceConductances(w int) {
 	g := r.g
-	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.st.nxy
+	nx, ny, nz, nxy := g.N[0], g.N[1], g.N[2], r.pad
 	dx := g.CellSize
 	harmonic := func(k1, k2 float64) float64 { return 2 * dx * k1 * k2 / (k1 + k2) } // 0 when k2 = 0 (outside)
 	pair := func(c, nb int) float64 { return harmonic(r.cellK(c), r.cellK(nb)) }
@@ -615,9 +625,9 @@ func (r *run) faceConductances(w int) {
 		}
 	}
 	for _, sp := range r.slabs[w] {
-		for c := sp.lo; c < sp.hi; c++ {
+		for c, at := sp.lo, sp.cp; c < sp.hi; c, at = c+1, at+1 {
 			var gxp, gyp, gzp float64
-			if c+1 < sp.rowStart+nx {
+			if sp.x+c-sp.lo < nx-1 {
 				gxp = pair(c, c+1)
 			}
 			if sp.y < ny-1 {
@@ -626,7 +636,7 @@ func (r *run) faceConductances(w int) {
 			if sp.z < nz-1 {
 				gzp = pair(c, c+nxy)
 			}
-			r.st.gx[c], r.st.gy[c], r.st.gz[c] = float32(gxp), float32(gyp), float32(gzp)
+			r.st.gx[at], r.st.gy[at], r.st.gz[at] = float32(gxp), float32(gyp), float32(gzp)
 		}
 	}
 }
@@ -637,17 +647,14 @@ func (r *run) faceConductances(w int) {
 // the conductivity of T*.
 func (r *run) fill(w int) {
 	g, st := r.g, &r.st
-	nx, nxy := st.nx, st.nxy
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
 	ref := r.p.Initial // the enthalpy's zero
 	for _, sp := range r.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			m := &r.mats[g.Region[c-r.pad]-1]
 			capacity := m.rhoV / r.dt
-			// A conductance to a cell outside the part (or beyond the
-			// box, in the padding) is 0.
-			gsum := float64(st.gx[c]) + float64(st.gx[c-1]) + float64(st.gy[c]) +
-				float64(st.gy[c-nx]) + float64(st.gz[c]) + float64(st.gz[c-nxy])
+			// A conductance to a cell outside the part is 0.
+			gsum := st.sumG(&sp, sp.cp+c-sp.lo)
 			if cp := m.constantCp; cp != 0 {
 				// h(T) = cp·(T − ref), so h(T*) − cp·T* = −cp·ref.
 				st.diag[i] = a0*capacity*cp + gsum

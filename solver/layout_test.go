@@ -1,0 +1,102 @@
+package solver
+
+import (
+	"math"
+	"testing"
+)
+
+// TestLayoutKeepsWhatPassesRead checks on the bracket (bore, slot, thin
+// walls) that every cell a stencil reads from a part cell is kept (its six
+// neighbours), and in a coarse level's wide layout what the interpolation
+// reads too (the 3×3 rows around its row over its x ± 1).
+func TestLayoutKeepsWhatPassesRead(t *testing.T) {
+	t.Parallel()
+	g := bracketGrid(19)
+	n := g.N
+	inPart := func(x, y, z int) bool {
+		return x >= 0 && y >= 0 && z >= 0 && x < n[0] && y < n[1] && z < n[2] && g.Region[x+n[0]*(y+n[1]*z)] != 0
+	}
+	narrow := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, false)
+	lay := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, true)
+	seen := map[int]bool{}
+	for z := range n[2] {
+		for y := range n[1] {
+			for x := range n[0] {
+				if !inPart(x, y, z) {
+					continue
+				}
+				for _, nb := range [6][3]int{{-1, 0, 0}, {1, 0, 0}, {0, -1, 0}, {0, 1, 0}, {0, 0, -1}, {0, 0, 1}} {
+					xx, yy, zz := x+nb[0], y+nb[1], z+nb[2]
+					if yy < 0 || zz < 0 || yy >= n[1] || zz >= n[2] {
+						continue // outside the box: the zero row
+					}
+					if _, ok := narrow.at(xx, yy, zz); !ok {
+						t.Fatalf("neighbour (%d,%d,%d) of part cell (%d,%d,%d) is not kept", xx, yy, zz, x, y, z)
+					}
+				}
+				pos, ok := lay.at(x, y, z)
+				if !ok || seen[pos] {
+					t.Fatalf("part cell (%d,%d,%d): kept %v, position %d taken twice %v", x, y, z, ok, pos, seen[pos])
+				}
+				seen[pos] = true
+				for dz := -1; dz <= 1; dz++ {
+					for dy := -1; dy <= 1; dy++ {
+						for dx := -1; dx <= 1; dx++ {
+							yy, zz := y+dy, z+dz
+							if yy < 0 || zz < 0 || yy >= n[1] || zz >= n[2] {
+								continue // outside the box: the zero row
+							}
+							if _, ok := lay.at(x+dx, yy, zz); !ok {
+								t.Fatalf("cell (%d,%d,%d) beside part cell (%d,%d,%d) is not kept", x+dx, yy, zz, x, y, z)
+							}
+						}
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestMemoryFollowsThePart: a part that fills a fraction of its box costs
+// about what a solid block of as many cells costs, per part cell, and
+// every one stays under 150 bytes a cell. Thin walls cost more per cell
+// (the shell of kept cells around the part, the surface faces, and the
+// solution, which stays a whole-box array): the tube's walls are 8 cells
+// thick here; at 5 cells it takes about 155 bytes.
+func TestMemoryFollowsThePart(t *testing.T) {
+	t.Parallel()
+	const cell = 1e-3
+	f := 60 * cell
+	shapes := []struct {
+		name string
+		part testPart
+	}{
+		{"solid block", block3(60)},
+		{"ball", testPart{n: [3]int{60, 60, 60}, cell: cell, inside: func(p [3]float64) bool {
+			return math.Hypot(math.Hypot(p[0]-f/2, p[1]-f/2), p[2]-f/2) < f/2
+		}}},
+		{"tube, a third of its box", testPart{n: [3]int{60, 60, 60}, cell: cell, inside: func(p [3]float64) bool {
+			r := math.Hypot(p[0]-f/2, p[1]-f/2)
+			return r < f/2 && r > 0.36*f
+		}}},
+	}
+	perCell := map[string]float64{}
+	for _, s := range shapes {
+		s.part.cell = cell
+		s.part.origin = [3]float64{}
+		p := problemFor(testGrid(s.part), constantMaterial(40, 1, 3.6e6), convection(100, 293), 1073, 3600)
+		r := newRun(p)
+		perCell[s.name] = float64(r.memory()) / float64(r.g.PartCells())
+		fill := float64(r.g.PartCells()) / float64(r.g.CellCount())
+		r.ws.stop()
+		t.Logf("%s: fills %.0f %% of its box, %.0f bytes per part cell", s.name, 100*fill, perCell[s.name])
+		if perCell[s.name] >= 150 {
+			t.Errorf("%s: %.0f bytes per part cell", s.name, perCell[s.name])
+		}
+	}
+	for name, b := range perCell {
+		if b > 1.3*perCell["solid block"] {
+			t.Errorf("%s: %.0f bytes per part cell against %.0f for the solid block", name, b, perCell["solid block"])
+		}
+	}
+}

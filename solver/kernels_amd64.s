@@ -377,3 +377,101 @@ dotDone:
 	VMOVSD X9, zq+40(FP)
 	VZEROUPPER
 	RET
+
+// func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32)
+// d = dst = cr·b·inv: the first Chebyshev step from x = 0.
+TEXT ·fromZeroAVX(SB), NOSPLIT, $0-48
+	MOVQ n+0(FP), CX
+	ANDQ $-8, CX
+	VBROADCASTSS cr+8(FP), Y15
+	MOVQ b+16(FP), SI
+	MOVQ inv+24(FP), DI
+	MOVQ d+32(FP), R8
+	MOVQ dst+40(FP), R9
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE fzTail
+fzLoop:
+	VMULPS (SI)(AX*4), Y15, Y0
+	VMULPS (DI)(AX*4), Y0, Y0
+	VMOVUPS Y0, (R8)(AX*4)
+	VMOVUPS Y0, (R9)(AX*4)
+	ADDQ $8, AX
+	CMPQ AX, CX
+	JLT fzLoop
+fzTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE fzDone
+fzTailLoop:
+	VMULSS (SI)(AX*4), X15, X0
+	VMULSS (DI)(AX*4), X0, X0
+	VMOVSS X0, (R8)(AX*4)
+	VMOVSS X0, (R9)(AX*4)
+	ADDQ $1, AX
+	CMPQ AX, CX
+	JLT fzTailLoop
+fzDone:
+	VZEROUPPER
+	RET
+
+DATA prolongCentre<>+0(SB)/4, $1
+DATA prolongCentre<>+4(SB)/4, $1
+DATA prolongCentre<>+8(SB)/4, $2
+DATA prolongCentre<>+12(SB)/4, $2
+DATA prolongCentre<>+16(SB)/4, $3
+DATA prolongCentre<>+20(SB)/4, $3
+DATA prolongCentre<>+24(SB)/4, $4
+DATA prolongCentre<>+28(SB)/4, $4
+GLOBL prolongCentre<>(SB), RODATA|NOPTR, $32
+
+DATA prolongSide<>+0(SB)/4, $0
+DATA prolongSide<>+4(SB)/4, $2
+DATA prolongSide<>+8(SB)/4, $1
+DATA prolongSide<>+12(SB)/4, $3
+DATA prolongSide<>+16(SB)/4, $2
+DATA prolongSide<>+20(SB)/4, $4
+DATA prolongSide<>+24(SB)/4, $3
+DATA prolongSide<>+28(SB)/4, $5
+GLOBL prolongSide<>(SB), RODATA|NOPTR, $32
+
+DATA quarter<>+0(SB)/4, $0.25
+GLOBL quarter<>(SB), RODATA|NOPTR, $4
+DATA threeQuarters<>+0(SB)/4, $0.75
+GLOBL threeQuarters<>(SB), RODATA|NOPTR, $4
+
+// func prolongAVX(parents int, row, scale, x *float32)
+// For the coarse cells row[1] … row[parents] (row[0] the cell before the
+// first), adds to x, eight fine cells at a time (the two children of four
+// coarse cells), scale·(3/4 of the parent and 1/4 of the parent's
+// neighbour on the child's side). parents is a multiple of 4; row must
+// hold parents + 8 values.
+TEXT ·prolongAVX(SB), NOSPLIT, $0-32
+	MOVQ parents+0(FP), CX
+	MOVQ row+8(FP), SI
+	MOVQ scale+16(FP), DI
+	MOVQ x+24(FP), R8
+	VMOVDQU prolongCentre<>(SB), Y13
+	VMOVDQU prolongSide<>(SB), Y12
+	VBROADCASTSS threeQuarters<>(SB), Y15
+	VBROADCASTSS quarter<>(SB), Y14
+	XORQ AX, AX // coarse cell
+	XORQ BX, BX // fine cell
+	CMPQ AX, CX
+	JGE prolDone
+prolLoop:
+	VMOVUPS (SI)(AX*4), Y0
+	VPERMPS Y0, Y13, Y1
+	VPERMPS Y0, Y12, Y2
+	VMULPS Y14, Y2, Y2
+	VFMADD231PS Y15, Y1, Y2
+	VMOVUPS (R8)(BX*4), Y3
+	VFMADD231PS (DI)(BX*4), Y2, Y3
+	VMOVUPS Y3, (R8)(BX*4)
+	ADDQ $4, AX
+	ADDQ $8, BX
+	CMPQ AX, CX
+	JLT prolLoop
+prolDone:
+	VZEROUPPER
+	RET

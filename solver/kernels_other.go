@@ -33,3 +33,11 @@ func directionAVX(n int, beta float64, z *float32, p *float64) {
 func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64) {
 	panic("solver: no vector kernels on this architecture")
 }
+
+func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32) {
+	panic("solver: no vector kernels on this architecture")
+}
+
+func prolongAVX(parents int, row, scale, x *float32) {
+	panic("solver: no vector kernels on this architecture")
+}

@@ -61,6 +61,24 @@ func TestVectorKernelsMatchLoops(t *testing.T) {
 	dv, _ = run(true, residual)
 	dl, _ = run(false, residual)
 	compare("residual", dv, dl)
+	fromZero := func() { l.smoothFromZero(spans, l.xNext) }
+	dv, xv = run(true, fromZero)
+	dl, xl = run(false, fromZero)
+	compare("first step's direction", dv, dl)
+	compare("first step", xv, xl)
+
+	// Prolongation adds the interpolated coarse values to x, per slab.
+	fill(l.next.x)
+	prolong := func(vector bool) []float32 {
+		saved := append([]float32(nil), l.x...)
+		defer copy(l.x, saved)
+		l.vector = vector
+		for w := range l.slabs {
+			l.prolong(w, l.slabs[w])
+		}
+		return append([]float32(nil), l.x...)
+	}
+	compare("prolongation", prolong(true), prolong(false))
 
 	// The CG product, in float64 with float32 conductances.
 	a := &r.st

@@ -70,7 +70,8 @@ type mgLevel struct {
 	scale []float32
 	// coarseRow (per slab of this level) and fineRow (per slab of the
 	// next) are the blended rows of prolong and restrict, two cells longer
-	// than a row of the level they blend, their ends 0.
+	// than a row of the level they blend (and a vector longer, coarseRow),
+	// their ends 0.
 	coarseRow, fineRow [][]float32
 	// coarsenSums (per slab of the next level) are coarsen's float64 sums
 	// over a coarse span: own terms and the three conductances.
@@ -169,7 +170,7 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays
 		l.next = c
 		l.scale = grow[float32](mem, l.cells)
 		for range l.slabs {
-			l.coarseRow = append(l.coarseRow, make([]float32, cn[0]+2))
+			l.coarseRow = append(l.coarseRow, make([]float32, cn[0]+2+8)) // 8 for prolongAVX's loads
 		}
 		for range c.slabs {
 			l.fineRow = append(l.fineRow, make([]float32, l.n[0]+3))
@@ -369,6 +370,10 @@ func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		inv, d, next := win(l.inv, sp.at, n)[:len(b)], win(l.d, sp.cp, n)[:len(b)], win(dst, sp.cp, n)[:len(b)]
+		if l.vector {
+			fromZeroAVX(n, cr, &b[0], &inv[0], &d[0], &next[0])
+			continue
+		}
 		for i := range b {
 			v := cr * b[i] * inv[i]
 			d[i], next[i] = v, v
@@ -493,6 +498,12 @@ func (l *mgLevel) prolong(w int, spans []span) {
 			I := first >> 1
 			xs[0] += sc[0] * (0.75*row[I+1] + 0.25*row[I+2])
 			i = 1
+		}
+		if m := (len(xs) - i) &^ 7; l.vector && m > 0 {
+			I := (first + i) >> 1
+			_, _ = row[I:I+m/2+8], sc[i:i+m]
+			prolongAVX(m/2, &row[I], &sc[i], &xs[i])
+			i += m
 		}
 		for ; i+1 < len(xs); i += 2 {
 			I := (first + i) >> 1

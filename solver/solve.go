@@ -378,6 +378,14 @@ func (r *run) maxAcc() float64 {
 	return m
 }
 
+// partRows returns the cells of span sp in the solution, in the solution
+// before and in the one before that, as equal-length views.
+func (r *run) partRows(sp span) (t, tn, tnm1 []float64) {
+	t = r.t[sp.lo:sp.hi]
+	n := len(t)
+	return t, r.tn[sp.at : sp.at+n : sp.at+n], r.tnm1[sp.at : sp.at+n : sp.at+n]
+}
+
 // slabParts calls fn for every part cell of slab w.
 func (r *run) slabParts(w int, fn func(c, i int, m *material)) {
 	for _, sp := range r.slabs[w] {
@@ -543,7 +551,12 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 		ratio = h / dtPrev
 	}
 	r.eachSlab(func(w int) {
-		r.slabParts(w, func(c, i int, _ *material) { r.t[c] = r.tn[i] + ratio*(r.tn[i]-r.tnm1[i]) })
+		for _, sp := range r.slabs[w] {
+			t, tn, tm := r.partRows(sp)
+			for i := range t {
+				t[i] = tn[i] + ratio*(tn[i]-tm[i])
+			}
+		}
 	})
 	r.dt, r.coef = h, coef
 	for pass := 1; ; pass++ {
@@ -567,7 +580,13 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 		}
 		r.eachSlab(func(w int) {
 			moved := 0.0
-			r.slabParts(w, func(c, i int, _ *material) { moved = max(moved, math.Abs(r.t[c]-r.tstar[i])) })
+			for _, sp := range r.slabs[w] {
+				t, ts := r.t[sp.lo:sp.hi], r.tstar[sp.at:sp.at+sp.hi-sp.lo]
+				ts = ts[:len(t)]
+				for i := range t {
+					moved = max(moved, math.Abs(t[i]-ts[i]))
+				}
+			}
 			r.acc[w] = partial{a: moved}
 		})
 		if r.maxAcc() <= r.newtonTol {
@@ -735,9 +754,12 @@ func (r *run) storedEnergy() float64 {
 func (r *run) localError(ratio float64) float64 {
 	r.eachSlab(func(w int) {
 		lte := 0.0
-		r.slabParts(w, func(c, i int, _ *material) {
-			lte = max(lte, math.Abs(r.t[c]-r.tn[i]-ratio*(r.tn[i]-r.tnm1[i])))
-		})
+		for _, sp := range r.slabs[w] {
+			t, tn, tm := r.partRows(sp)
+			for i := range t {
+				lte = max(lte, math.Abs(t[i]-tn[i]-ratio*(tn[i]-tm[i])))
+			}
+		}
 		r.acc[w] = partial{a: lte}
 	})
 	return r.maxAcc() / 2
@@ -747,7 +769,12 @@ func (r *run) localError(ratio float64) float64 {
 func (r *run) largestChange() float64 {
 	r.eachSlab(func(w int) {
 		change := 0.0
-		r.slabParts(w, func(c, i int, _ *material) { change = max(change, math.Abs(r.t[c]-r.tn[i])) })
+		for _, sp := range r.slabs[w] {
+			t, tn, _ := r.partRows(sp)
+			for i := range t {
+				change = max(change, math.Abs(t[i]-tn[i]))
+			}
+		}
 		r.acc[w] = partial{a: change}
 	})
 	return r.maxAcc()

@@ -124,13 +124,14 @@ type run struct {
 
 	phases []*ExposurePhase // per surface group, for the current step
 	// faceFlow and faceConductance are each face's heat flow into its cell
-	// at the linearisation point and −d(flow)/dT there.
-	faceFlow, faceConductance []float64
-	linear                    bool // constant properties and no radiation: one pass per step
-	constantK                 bool
-	newtonTol                 float64
-	drive                     float64 // largest driving temperature difference, K
-	phaseStarts               []float64
+	// at the linearisation point and −d(flow)/dT there; faceSurface is the
+	// surface temperature found then, where the next search starts.
+	faceFlow, faceConductance, faceSurface []float64
+	linear                                 bool // constant properties and no radiation: one pass per step
+	constantK                              bool
+	newtonTol                              float64
+	drive                                  float64 // largest driving temperature difference, K
+	phaseStarts                            []float64
 
 	// operands of the assembly tasks
 	dt                                          float64
@@ -161,6 +162,7 @@ func newRunOn(p *Problem, vector bool) *run {
 		t:        grow[float64](mem, size),
 		phases:   make([]*ExposurePhase, len(g.Groups)),
 		faceFlow: make([]float64, len(g.Faces)), faceConductance: make([]float64, len(g.Faces)),
+		faceSurface: make([]float64, len(g.Faces)),
 	}
 	vol := g.CellSize * g.CellSize * g.CellSize
 	r.linear, r.constantK = true, true
@@ -337,7 +339,7 @@ func (r *run) firstStep(maxChange float64) float64 {
 	for _, f := range g.Faces {
 		m := &r.mats[g.Region[f.Cell]-1]
 		ph := &p.Exposures[f.Group].Phases[0]
-		_, q, _ := faceExchange(halfCellConductance(m.k.At(p.Initial), h), f.Area, ph, p.Initial)
+		_, q, _ := faceExchange(halfCellConductance(m.k.At(p.Initial), h), f.Area, ph, p.Initial, p.Initial)
 		rate[f.Cell] += math.Abs(q) / (m.rhoV * m.cp.At(p.Initial))
 	}
 	for _, v := range rate {
@@ -417,7 +419,7 @@ func (r *run) partValues(dst []float64) {
 // memory returns the bytes of the run's arrays, the linear solver's included.
 func (r *run) memory() int {
 	return 8*(len(r.t)+len(r.tn)+len(r.tnm1)+len(r.tstar)+len(r.b)+len(r.k)+
-		len(r.st.diag)+len(r.faceFlow)+len(r.faceConductance)) +
+		len(r.st.diag)+len(r.faceFlow)+len(r.faceConductance)+len(r.faceSurface)) +
 		4*(len(r.st.gx)+len(r.st.gy)+len(r.st.gz)+len(r.facePart)) + r.lin.memory()
 }
 
@@ -705,7 +707,8 @@ func (r *run) addFaces(w int) {
 		}
 		c, at := r.pad+int(f.Cell), r.facePart[i]
 		ts := r.tstar[at]
-		_, q, gl := faceExchange(halfCellConductance(r.cellK(c), g.CellSize), f.Area, ph, ts)
+		surface, q, gl := faceExchange(halfCellConductance(r.cellK(c), g.CellSize), f.Area, ph, ts, r.faceSurface[i])
+		r.faceSurface[i] = surface
 		r.faceFlow[i], r.faceConductance[i] = q, gl
 		r.st.diag[at] += gl
 		r.b[at] += q + gl*ts

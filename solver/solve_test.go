@@ -290,3 +290,20 @@ func TestThreadsAgree(t *testing.T) {
 		}
 	}
 }
+
+// TestSurfaceNewtonConvergesQuickly: the radiating face's balance is
+// smooth and monotone, so Newton from the cell temperature settles in a
+// handful of iterations; the answer must satisfy the balance to rounding.
+func TestSurfaceNewtonConvergesQuickly(t *testing.T) {
+	t.Parallel()
+	for _, tc := range []struct{ tCell, surroundings float64 }{{1073.15, 293.15}, {293.15, 1173.15}, {600, 600.5}} {
+		ph := &ExposurePhase{H: 100, Fluid: 293.15, Emissivity: 0.7, Surroundings: tc.surroundings}
+		gc, area := halfCellConductance(40, 1e-3), 1e-6
+		ts, steps := surfaceNewton(gc, area, ph, tc.tCell, tc.tCell)
+		es := ph.Emissivity * StefanBoltzmann
+		balance := gc*(tc.tCell-ts) - area*(ph.H*(ts-ph.Fluid)+es*(math.Pow(ts, 4)-math.Pow(ph.Surroundings, 4)))
+		if steps > 8 || math.Abs(balance) > 1e-12*gc*tc.tCell {
+			t.Errorf("cell %g K: surface %g K after %d iterations, balance off by %g W", tc.tCell, ts, steps, balance)
+		}
+	}
+}

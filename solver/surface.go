@@ -21,7 +21,10 @@ func (ph *ExposurePhase) insulated() bool { return ph.H == 0 && ph.Emissivity ==
 // equals convection and radiation from the surface of area A. It returns
 // the surface temperature ts, the heat flow into the cell qIn (W) and the
 // linearised conductance gLin = −dqIn/dtCell (W/K) used by Newton passes.
-func faceExchange(gc, area float64, ph *ExposurePhase, tCell float64) (ts, qIn, gLin float64) {
+// guess is where the search for a radiating surface's temperature starts
+// (the last one found, say); any value outside the temperatures that
+// drive the face starts it at tCell.
+func faceExchange(gc, area float64, ph *ExposurePhase, tCell, guess float64) (ts, qIn, gLin float64) {
 	if ph.insulated() {
 		return tCell, 0, 0
 	}
@@ -31,14 +34,16 @@ func faceExchange(gc, area float64, ph *ExposurePhase, tCell float64) (ts, qIn, 
 		ts = (gc*tCell + hA*ph.Fluid) / (gc + hA)
 		return ts, gc * (ts - tCell), gc * hA / (gc + hA)
 	}
-	ts = surfaceNewton(gc, area, ph, tCell)
+	ts, _ = surfaceNewton(gc, area, ph, tCell, guess)
 	surface := area * (ph.H + 4*ph.Emissivity*StefanBoltzmann*ts*ts*ts)
 	return ts, gc * (ts - tCell), gc * surface / (gc + surface)
 }
 
 // surfaceNewton finds the surface temperature of a radiating face by Newton
-// iteration kept inside the bracket of the temperatures that drive it.
-func surfaceNewton(gc, area float64, ph *ExposurePhase, tCell float64) float64 {
+// iteration kept inside the bracket of the temperatures that drive it,
+// from guess when it lies inside, else from tCell. It returns the
+// temperature and the iterations taken.
+func surfaceNewton(gc, area float64, ph *ExposurePhase, tCell, guess float64) (float64, int) {
 	es := ph.Emissivity * StefanBoltzmann
 	tsur2 := ph.Surroundings * ph.Surroundings
 	lo, hi := math.Min(tCell, ph.Surroundings), math.Max(tCell, ph.Surroundings)
@@ -52,10 +57,13 @@ func surfaceNewton(gc, area float64, ph *ExposurePhase, tCell float64) float64 {
 		return f, df
 	}
 	ts := tCell
-	for range 200 {
+	if guess > lo && guess < hi {
+		ts = guess
+	}
+	for it := 1; it <= 200; it++ {
 		f, df := balance(ts)
 		if f == 0 {
-			return ts
+			return ts, it
 		}
 		if f > 0 { // the balance falls with ts, so the root lies above
 			lo = ts
@@ -63,15 +71,17 @@ func surfaceNewton(gc, area float64, ph *ExposurePhase, tCell float64) float64 {
 			hi = ts
 		}
 		next := ts - f/df
+		// Converged first: a step below the last digit leaves next on the
+		// bracket's end, which is no reason to bisect.
+		if math.Abs(next-ts) <= 1e-13*hi {
+			return next, it
+		}
 		if !(next > lo && next < hi) {
 			next = 0.5 * (lo + hi)
 		}
-		if math.Abs(next-ts) <= 1e-13*hi {
-			return next
-		}
 		ts = next
 	}
-	return ts
+	return ts, 200
 }
 
 // SurfaceTemperature returns the temperature of the real surface at boundary
@@ -87,7 +97,7 @@ func SurfaceTemperature(p *Problem, face int, tCell, time float64) float64 {
 	f := &g.Faces[face]
 	m := &p.Materials[g.Region[f.Cell]-1]
 	gc := halfCellConductance(m.Conductivity.At(tCell), g.CellSize)
-	ts, _, _ := faceExchange(gc, f.Area, phaseBefore(&p.Exposures[f.Group], time), tCell)
+	ts, _, _ := faceExchange(gc, f.Area, phaseBefore(&p.Exposures[f.Group], time), tCell, tCell)
 	return ts
 }
 

@@ -391,7 +391,7 @@ func TestValidateMemoryMessage(t *testing.T) {
 	// 1000³ cells × 121 B plus 8·3e6 faces × 64 B = 1.22536e11 B = 114.12 GiB
 	// (worked by hand from mesh.EstimateBytes's stated sizes).
 	got := problems(t, spec, jobspec.Limits{MaxMemoryBytes: 4 << 30})
-	want := "cells_across: cells_across 1000 makes a grid of 1000 × 1000 × 1000 = 1000 M cells needing about 114.1 GiB, over the 4.0 GiB memory limit; " +
+	want := "cells_across: cells_across 1000 makes a grid of 1000 × 1000 × 1000 = 1000 M cells needing about 114.5 GiB, over the 4.0 GiB memory limit; " +
 		"coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run"
 	if len(got) != 1 || got[0].String() != want {
 		t.Errorf("got %v\nwant %s", got, want)
@@ -450,7 +450,7 @@ func TestValidateBadSpecFiles(t *testing.T) {
 		// 8·(20000·200·2 + 200·200) faces × 64 B = 1.00916e11 B = 93.99 GiB.
 		{"bad-grid-too-fine.yaml", []string{
 			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells, over the limit of 64 M cells; coarsen the grid (fewer cells_across or a larger cell_size_m)",
-			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells needing about 94.0 GiB, over the 4.0 GiB memory limit; coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run",
+			"cell_size_m: cell_size_m 0.0001 makes a grid of 20000 × 200 × 200 = 800 M cells needing about 94.9 GiB, over the 4.0 GiB memory limit; coarsen the grid (fewer cells_across or a larger cell_size_m) or raise the limit with the --max-memory flag of soak run",
 		}},
 	}
 	for _, tc := range cases {

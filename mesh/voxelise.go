@@ -48,11 +48,13 @@ func CorrectedFaceArea(h float64, n [3]float64) float64 {
 // spec can be refused before anything is allocated.
 //
 // Per cell: 1 byte of Region plus the solver's arrays: 120 bytes, the
-// solver's own measure on a solid block (114 to 117 bytes a cell, see
-// soak bench) rounded up; sparse parts take less per box cell. (While voxelising an assembly of several
-// bodies, 2 bytes per cell record the deciding body and 1 byte per cell of
-// the body's box its inside test; both are freed before the solver runs.) Per boundary face: the BoundaryFace itself
-// plus two float64 of solver data. A convex part has at most two boundary
+// solver's own measure on a solid block (109 to 112 bytes a cell with its
+// face data set apart) rounded up; the solver's arrays follow the part,
+// so sparse parts take less per box cell. (While voxelising an assembly of
+// several bodies, 2 bytes per cell record the deciding body and 1 byte per
+// cell of the body's box its inside test; both are freed before the
+// solver runs.) Per boundary face: the BoundaryFace itself plus the
+// solver's three float64 and two int32 of face data. A convex part has at most two boundary
 // faces on each grid line, 2(NxNy+NyNz+NzNx) in all; the estimate allows
 // four times that for parts with re-entrant surfaces, but never more than
 // six faces per cell.
@@ -61,7 +63,7 @@ func EstimateBytes(n [3]int) int64 {
 		return 0
 	}
 	const bytesPerCell = 1 + 120
-	const bytesPerFace = int64(unsafe.Sizeof(BoundaryFace{})) + 2*8
+	const bytesPerFace = int64(unsafe.Sizeof(BoundaryFace{})) + 3*8 + 2*4
 	nx, ny, nz := int64(n[0]), int64(n[1]), int64(n[2])
 	cells := nx * ny * nz
 	faces := min(4*2*(nx*ny+ny*nz+nz*nx), 6*cells)

@@ -3,6 +3,9 @@ package solver
 import (
 	"math"
 	"testing"
+	"unsafe"
+
+	"soakfarm/mesh"
 )
 
 // TestLayoutKeepsWhatPassesRead checks on the bracket (bore, slot, thin
@@ -87,6 +90,11 @@ func TestMemoryFollowsThePart(t *testing.T) {
 		p := problemFor(testGrid(s.part), constantMaterial(40, 1, 3.6e6), convection(100, 293), 1073, 3600)
 		r := newRun(p)
 		perCell[s.name] = float64(r.memory()) / float64(r.g.PartCells())
+		// The estimate that specs are refused by must cover it.
+		if est, used := mesh.EstimateBytes(r.g.N), int64(r.memory()+len(r.g.Region))+
+			int64(len(r.g.Faces))*int64(unsafe.Sizeof(mesh.BoundaryFace{})); est < used {
+			t.Errorf("%s: memory estimate %d bytes below the %d in use", s.name, est, used)
+		}
 		fill := float64(r.g.PartCells()) / float64(r.g.CellCount())
 		r.ws.stop()
 		t.Logf("%s: fills %.0f %% of its box, %.0f bytes per part cell", s.name, 100*fill, perCell[s.name])

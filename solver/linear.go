@@ -81,6 +81,9 @@ type linearSolver interface {
 	// moved returns the bytes moved to and from memory so far, by a model
 	// of each pass (bytes per part cell).
 	moved() float64
+	// cycles returns the wall time spent in multigrid cycles so far and
+	// the bytes they moved, by the same model (0 without multigrid).
+	cycles() (seconds, bytes float64)
 	// memory returns the bytes of the solver's own arrays.
 	memory() int
 }
@@ -242,6 +245,8 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 }
 
 func (s *jacobiCG) moved() float64 { return s.bytes }
+
+func (s *jacobiCG) cycles() (seconds, bytes float64) { return 0, 0 }
 
 func (s *jacobiCG) memory() int { return 8 * (len(s.r) + len(s.p) + len(s.q) + len(s.invDiag)) }
 

@@ -54,6 +54,8 @@ func newMultigridCG(ws *workers, slabs [][]span, a *stencil, dims [3]int, part f
 
 func (s *multigridCG) moved() float64 { return s.bytes + s.mg.moved }
 
+func (s *multigridCG) cycles() (seconds, bytes float64) { return s.mg.cycleSeconds, s.mg.cycleBytes }
+
 func (s *multigridCG) memory() int {
 	return 8*(len(s.r)+len(s.p)+len(s.q)) + s.mg.memory()
 }

@@ -64,6 +64,9 @@ type Result struct {
 	SecondsPerStep          float64 `json:"seconds_per_step"`
 	CellIterationsPerSecond float64 `json:"cell_iterations_per_second"`
 	BandwidthGBs            float64 `json:"bandwidth_gbs"` // linear solver's modelled traffic / time
+	// CycleGBs is the multigrid V-cycles' modelled traffic over their own
+	// wall time, set-up and the CG passes left out.
+	CycleGBs                float64 `json:"cycle_gbs"`
 	TriadGBs                float64 `json:"triad_gbs"`
 	BytesPerCell            float64 `json:"bytes_per_cell"` // solver memory per part cell
 	ReferenceIterations     float64 `json:"reference_iterations"`
@@ -168,7 +171,7 @@ func measured(measure func(preconditioner string) (solver.Measurement, error)) (
 	if err != nil {
 		return Result{}, fmt.Errorf("jacobi reference: %w", err)
 	}
-	if mg.Steps == 0 || ref.Steps == 0 || !(mg.Seconds > 0) {
+	if mg.Steps == 0 || ref.Steps == 0 || !(mg.Seconds > 0) || !(mg.CycleSeconds > 0) {
 		return Result{}, errors.New("no step was timed")
 	}
 	steps := float64(mg.Steps)
@@ -178,6 +181,7 @@ func measured(measure func(preconditioner string) (solver.Measurement, error)) (
 		SecondsPerStep:          mg.Seconds / steps,
 		CellIterationsPerSecond: float64(mg.Cells) * float64(mg.Iterations) / mg.Seconds,
 		BandwidthGBs:            mg.BytesMoved / mg.Seconds / 1e9,
+		CycleGBs:                mg.CycleBytesMoved / mg.CycleSeconds / 1e9,
 		BytesPerCell:            float64(mg.MemoryBytes) / float64(mg.Cells),
 		ReferenceIterations:     float64(ref.Iterations) / float64(ref.Steps),
 		ReferenceSecondsPerStep: ref.Seconds / float64(ref.Steps),
@@ -280,15 +284,15 @@ func WriteText(w io.Writer, results []Result) error {
 	if _, err := fmt.Fprintf(w, "threads %d, triad bandwidth %.1f GB/s\n", r0.Threads, r0.TriadGBs); err != nil {
 		return err
 	}
-	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %6s  %6s %9s %7s\n",
-		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "B/cell",
+	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %6s  %6s %9s %7s\n",
+		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "cycle%", "B/cell",
 		"ref it", "ref s", "speedup"); err != nil {
 		return err
 	}
 	for _, r := range results {
-		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f  %6.1f %9.3f %6.1f×\n",
+		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f%% %6.0f  %6.1f %9.3f %6.1f×\n",
 			r.Case, r.CellFourier, r.Cells, r.Iterations, r.SecondsPerStep, r.CellIterationsPerSecond,
-			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, r.BytesPerCell,
+			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, 100*r.CycleGBs/r.TriadGBs, r.BytesPerCell,
 			r.ReferenceIterations, r.ReferenceSecondsPerStep, r.Speedup); err != nil {
 			return err
 		}

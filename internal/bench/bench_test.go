@@ -26,7 +26,7 @@ func TestRunSmall(t *testing.T) {
 	for _, r := range results {
 		for name, v := range map[string]float64{
 			"iterations": r.Iterations, "seconds_per_step": r.SecondsPerStep, "reference_seconds_per_step": r.ReferenceSecondsPerStep,
-			"bandwidth_gbs": r.BandwidthGBs, "triad_gbs": r.TriadGBs, "bytes_per_cell": r.BytesPerCell,
+			"bandwidth_gbs": r.BandwidthGBs, "cycle_gbs": r.CycleGBs, "triad_gbs": r.TriadGBs, "bytes_per_cell": r.BytesPerCell,
 			"cell_iterations_per_second": r.CellIterationsPerSecond,
 		} {
 			if !(v > 0) || math.IsInf(v, 0) {

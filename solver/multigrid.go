@@ -613,18 +613,32 @@ func (l *mgLevel) coarsen(w int) {
 				lastY, lastZ := j == f[1]*J+f[1]-1, k == f[2]*K+f[2]-1
 				lo, hi := f[0]*sp.x, min(f[0]*(sp.x+n), l.n[0]) // the children along x
 				for _, rn := range l.lay.runs[l.lay.first[r]:l.lay.first[r+1]] {
-					for i := max(lo, int(rn.lo)); i < min(hi, int(rn.hi)); i++ {
+					from, to := max(lo, int(rn.lo)), min(hi, int(rn.hi))
+					if from >= to {
+						continue
+					}
+					// Views indexed by the child's x less from.
+					at := int(rn.pos) - int(rn.lo) + from
+					o, gx := own[at:at+to-from], l.gx[at:at+to-from]
+					// sum and sx take every child and the last child along
+					// x of each parent (odd i when x is halved).
+					for k, i := 0, from; i < to; k, i = k+1, i+1 {
 						I := i/f[0] - sp.x
-						at := int(rn.pos) + i - int(rn.lo)
-						sum[I] += float64(own[at])
+						sum[I] += float64(o[k])
 						if i%f[0] == f[0]-1 {
-							sx[I] += float64(l.gx[at])
+							sx[I] += float64(gx[k])
 						}
-						if lastY {
-							sy[I] += float64(l.gy[at])
+					}
+					if lastY {
+						gy := l.gy[at : at+to-from]
+						for k, i := 0, from; i < to; k, i = k+1, i+1 {
+							sy[i/f[0]-sp.x] += float64(gy[k])
 						}
-						if lastZ {
-							sz[I] += float64(l.gz[at])
+					}
+					if lastZ {
+						gz := l.gz[at : at+to-from]
+						for k, i := 0, from; i < to; k, i = k+1, i+1 {
+							sz[i/f[0]-sp.x] += float64(gz[k])
 						}
 					}
 				}

@@ -129,9 +129,12 @@ type run struct {
 	faceFlow, faceConductance, faceSurface []float64
 	linear                                 bool // constant properties and no radiation: one pass per step
 	constantK                              bool
-	newtonTol                              float64
-	drive                                  float64 // largest driving temperature difference, K
-	phaseStarts                            []float64
+	// regionK is each region's conductivity when all are constant, by
+	// region number (0 outside the part: 0).
+	regionK     []float64
+	newtonTol   float64
+	drive       float64 // largest driving temperature difference, K
+	phaseStarts []float64
 
 	// operands of the assembly tasks
 	dt                                          float64
@@ -190,7 +193,12 @@ func newRunOn(p *Problem, vector bool) *run {
 			r.contactR[c.RegionA][c.RegionB], r.contactR[c.RegionB][c.RegionA] = res, res
 		}
 	}
-	if !r.constantK {
+	if r.constantK {
+		r.regionK = make([]float64, len(r.mats)+1)
+		for i, m := range r.mats {
+			r.regionK[i+1] = m.k.At(p.Initial) // constant: any temperature
+		}
+	} else {
 		r.k = grow[float64](mem, size)
 	}
 	drive := 1.0 // K, floor for a problem with no driving difference
@@ -619,11 +627,7 @@ func (r *run) cellK(c int) float64 {
 	if r.k != nil {
 		return r.k[c]
 	}
-	region := r.g.Region[c-r.pad]
-	if region == 0 {
-		return 0
-	}
-	return r.mats[region-1].k.At(r.p.Initial) // constant: any temperature
+	return r.regionK[r.g.Region[c-r.pad]]
 }
 
 // faceConductances sets the conductances between neighbouring part cells

@@ -132,11 +132,21 @@ func (s *multigridCG) fromStencil(w int) {
 	a, l := s.a, s.mg.levels[0]
 	hi := 0.0
 	for _, sp := range s.slabs[w] {
-		for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
-			g := a.sumG(&sp, c)
-			l.inv[i] = float32(1 / a.diag[i])
-			l.d[c] = float32(a.diag[i] - g)
-			hi = max(hi, 1+g/a.diag[i])
+		c, n := sp.cp, sp.hi-sp.lo
+		// Equal-length views let the compiler drop the bounds checks.
+		diag := a.diag[sp.at : sp.at+n]
+		inv, own := l.inv[sp.at:sp.at+n], l.d[c:c+n]
+		gx, gxw, gy, gys, gz, gzd := a.gx[c:c+n], a.gx[c-1:c-1+n], a.gy[c:c+n], a.gy[c+sp.ds:c+sp.ds+n],
+			a.gz[c:c+n], a.gz[c+sp.dd:c+sp.dd+n]
+		inv, own, gx, gxw, gy, gys, gz, gzd = inv[:n], own[:n], gx[:n], gxw[:n], gy[:n], gys[:n], gz[:n], gzd[:n]
+		for i := range diag {
+			g := float64(gx[i]) + float64(gxw[i]) + float64(gy[i]) + float64(gys[i]) + float64(gz[i]) + float64(gzd[i])
+			r := 1 / diag[i]
+			inv[i] = float32(r)
+			own[i] = float32(diag[i] - g)
+			if b := 1 + g*r; b > hi { // plain compare: max would also order NaNs
+				hi = b
+			}
 		}
 	}
 	l.lmax[w] = partial{a: hi}

@@ -597,6 +597,7 @@ func (l *mgLevel) coarsen(w int) {
 	f := l.factor
 	own := l.d
 	sums := l.coarsenSums[w]
+	shift := f[0] >> 1 // 0 or 1
 	for _, sp := range c.slabs[w] {
 		J, K, n := sp.y, sp.z, sp.hi-sp.lo
 		sum, sx, sy, sz := sums[0][:n], sums[1][:n], sums[2][:n], sums[3][:n]
@@ -621,24 +622,25 @@ func (l *mgLevel) coarsen(w int) {
 					at := int(rn.pos) - int(rn.lo) + from
 					o, gx := own[at:at+to-from], l.gx[at:at+to-from]
 					// sum and sx take every child and the last child along
-					// x of each parent (odd i when x is halved).
+					// x of each parent (odd i when x is halved). The factor
+					// is 1 or 2: a shift, not a division.
 					for k, i := 0, from; i < to; k, i = k+1, i+1 {
-						I := i/f[0] - sp.x
+						I := i>>shift - sp.x
 						sum[I] += float64(o[k])
-						if i%f[0] == f[0]-1 {
+						if i&(f[0]-1) == f[0]-1 {
 							sx[I] += float64(gx[k])
 						}
 					}
 					if lastY {
 						gy := l.gy[at : at+to-from]
 						for k, i := 0, from; i < to; k, i = k+1, i+1 {
-							sy[i/f[0]-sp.x] += float64(gy[k])
+							sy[i>>shift-sp.x] += float64(gy[k])
 						}
 					}
 					if lastZ {
 						gz := l.gz[at : at+to-from]
 						for k, i := 0, from; i < to; k, i = k+1, i+1 {
-							sz[i/f[0]-sp.x] += float64(gz[k])
+							sz[i>>shift-sp.x] += float64(gz[k])
 						}
 					}
 				}
@@ -662,9 +664,9 @@ func (l *mgLevel) diagonal(w int) {
 		for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
 			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c+sp.ds]) +
 				float64(l.gz[c]) + float64(l.gz[c+sp.dd])
-			diag := float64(l.d[c]) + g
-			l.inv[i] = float32(1 / diag)
-			hi = max(hi, 1+g/diag)
+			inv := 1 / (float64(l.d[c]) + g)
+			l.inv[i] = float32(inv)
+			hi = max(hi, 1+g*inv)
 		}
 	}
 	l.lmax[w] = partial{a: hi}

@@ -21,6 +21,17 @@
 	ADDQ $k, R8; \
 	ADDQ $k, R15
 
+// STENCIL_ARGS loads the arguments the float32 stencil kernels share:
+// the values x and the conductances (SI, DI, R9, R10), the inverse
+// diagonal (R11) and the right-hand side (R12).
+#define STENCIL_ARGS \
+	MOVQ x+40(FP), SI; \
+	MOVQ gx+48(FP), DI; \
+	MOVQ gy+56(FP), R9; \
+	MOVQ gz+64(FP), R10; \
+	MOVQ inv+72(FP), R11; \
+	MOVQ b+80(FP), R12
+
 // SUM_NEIGHBOURS32 adds Σ g·x over the six neighbours to Y0 (eight cells).
 #define SUM_NEIGHBOURS32 \
 	VMOVUPS (DI)(AX*4), Y1; \
@@ -63,12 +74,7 @@ TEXT ·chebyshevAVX(SB), NOSPLIT, $0-112
 	MOVQ n+0(FP), CX
 	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
-	MOVQ x+40(FP), SI
-	MOVQ gx+48(FP), DI
-	MOVQ gy+56(FP), R9
-	MOVQ gz+64(FP), R10
-	MOVQ inv+72(FP), R11
-	MOVQ b+80(FP), R12
+	STENCIL_ARGS
 	MOVQ d+88(FP), R13
 	MOVQ dst+96(FP), R14
 	VBROADCASTSS cr+104(FP), Y14
@@ -117,12 +123,7 @@ TEXT ·residualAVX(SB), NOSPLIT, $0-104
 	MOVQ n+0(FP), CX
 	ANDQ $-8, CX
 	NEIGHBOUR_INDICES
-	MOVQ x+40(FP), SI
-	MOVQ gx+48(FP), DI
-	MOVQ gy+56(FP), R9
-	MOVQ gz+64(FP), R10
-	MOVQ inv+72(FP), R11
-	MOVQ b+80(FP), R12
+	STENCIL_ARGS
 	MOVQ scale+88(FP), R13
 	MOVQ d+96(FP), R14
 	CMPQ AX, CX

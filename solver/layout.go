@@ -62,8 +62,10 @@ func (l *layout) neighbour(r, x int) int {
 }
 
 // newLayout builds the layout of a box of n cells whose part cells inPart
-// tells (by index x + n[0]·(y + n[1]·z)); wide for a coarse level.
-func newLayout(n [3]int, inPart func(c int) bool, wide bool) *layout {
+// tells (by index x + n[0]·(y + n[1]·z)); wide for a coarse level. It also
+// returns the runs of part cells of each row, indexed like the layout's
+// rows.
+func newLayout(n [3]int, inPart func(c int) bool, wide bool) (*layout, [][]run1d) {
 	nx, ny, nz := n[0], n[1], n[2]
 	l := &layout{n: n}
 	rows := (ny + 2) * (nz + 2)
@@ -130,5 +132,5 @@ func newLayout(n [3]int, inPart func(c int) bool, wide bool) *layout {
 		}
 	}
 	l.size = int(pos)
-	return l
+	return l, partRuns
 }

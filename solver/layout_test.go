@@ -19,8 +19,8 @@ func TestLayoutKeepsWhatPassesRead(t *testing.T) {
 	inPart := func(x, y, z int) bool {
 		return x >= 0 && y >= 0 && z >= 0 && x < n[0] && y < n[1] && z < n[2] && g.Region[x+n[0]*(y+n[1]*z)] != 0
 	}
-	narrow := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, false)
-	lay := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, true)
+	narrow, _ := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, false)
+	lay, _ := newLayout(n, func(c int) bool { return g.Region[c] != 0 }, true)
 	seen := map[int]bool{}
 	for z := range n[2] {
 		for y := range n[1] {

@@ -270,28 +270,21 @@ func partition(g *mesh.Grid, pad, threads int) ([][]span, *layout) {
 // in the layout it builds (span.cp and the deltas).
 func partitionMask(n [3]int, inPart func(c int) bool, pad, threads int, wide bool) ([][]span, *layout) {
 	nx, ny, nz := n[0], n[1], n[2]
-	lay := newLayout(n, inPart, wide)
+	lay, partRuns := newLayout(n, inPart, wide)
 	planes := make([][]span, nz)
 	total := 0
 	for z := range nz {
 		for y := range ny {
 			row := nx * (y + ny*z)
-			for x := 0; x < nx; {
-				if !inPart(row + x) {
-					x++
-					continue
-				}
-				lo := x
-				for x < nx && inPart(row+x) {
-					x++
-				}
+			for _, pr := range partRuns[lay.row(y, z)] {
+				lo, hi := int(pr.lo), int(pr.hi)
 				cp := lay.neighbour(lay.row(y, z), lo)
 				planes[z] = append(planes[z], span{
-					lo: pad + row + lo, hi: pad + row + x, cp: cp, at: total, x: lo, y: y, z: z,
+					lo: pad + row + lo, hi: pad + row + hi, cp: cp, at: total, x: lo, y: y, z: z,
 					dn: lay.neighbour(lay.row(y+1, z), lo) - cp, ds: lay.neighbour(lay.row(y-1, z), lo) - cp,
 					du: lay.neighbour(lay.row(y, z+1), lo) - cp, dd: lay.neighbour(lay.row(y, z-1), lo) - cp,
 				})
-				total += x - lo
+				total += hi - lo
 			}
 		}
 	}

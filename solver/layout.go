@@ -33,14 +33,6 @@ type run1d struct{ lo, hi, pos int32 }
 // row returns the index of row (y, z) in first.
 func (l *layout) row(y, z int) int { return (y + 1) + (l.n[1]+2)*(z+1) }
 
-// at returns the position of cell (x, y, z) and whether the layout keeps it.
-func (l *layout) at(x, y, z int) (int, bool) {
-	if y < -1 || y > l.n[1] || z < -1 || z > l.n[2] {
-		return 0, false
-	}
-	return l.inRow(l.row(y, z), x)
-}
-
 // inRow returns the position of cell x of row r and whether it is kept.
 func (l *layout) inRow(r, x int) (int, bool) {
 	for _, rn := range l.runs[l.first[r]:l.first[r+1]] {

@@ -94,9 +94,8 @@ type mgLevel struct {
 
 // newLevel makes a level of n cells whose part cells part tells; a level
 // built from a stencil (the finest) shares its conductances.
-func newLevel(n [3]int, part []bool, threads int, a *stencil, mem *arrays, vector bool) *mgLevel {
-	l := &mgLevel{n: n, vector: vector}
-	l.slabs, l.lay = partitionMask(n, func(c int) bool { return part[c] }, 0, threads, a == nil)
+func newLevel(n [3]int, slabs [][]span, lay *layout, a *stencil, mem *arrays, vector bool) *mgLevel {
+	l := &mgLevel{n: n, vector: vector, slabs: slabs, lay: lay}
 	size := l.lay.size
 	l.x, l.xNext, l.d = grow[float32](mem, size), grow[float32](mem, size), grow[float32](mem, size)
 	l.cells = partCells(l.slabs)
@@ -145,11 +144,14 @@ type multigrid struct {
 	cycleSeconds, cycleBytes float64
 }
 
-func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays) *multigrid {
+// newMultigrid builds the hierarchy over the finest level, whose part
+// cells part tells (by grid index) and which shares the solver's spans,
+// layout and conductances (a).
+func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]span, lay *layout, mem *arrays) *multigrid {
 	vector := a.vector
 	mg := &multigrid{ws: ws}
 	threads := ws.count()
-	l := newLevel(dims, part, threads, a, mem, vector)
+	l := newLevel(dims, slabs, lay, a, mem, vector)
 	mg.levels = append(mg.levels, l)
 	for l.cells > maxCoarseCells && (l.n[0] > 1 || l.n[1] > 1 || l.n[2] > 1) {
 		var cn [3]int
@@ -170,7 +172,8 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, mem *arrays
 				}
 			}
 		}
-		c := newLevel(cn, coarse, threads, nil, mem, vector)
+		cslabs, clay := partitionMask(cn, func(c int) bool { return coarse[c] }, 0, threads, true)
+		c := newLevel(cn, cslabs, clay, nil, mem, vector)
 		l.next = c
 		l.scale = grow[float32](mem, l.cells)
 		for range l.slabs {

@@ -247,7 +247,7 @@ func newRunOn(p *Problem, vector bool) *run {
 	if p.Stepping.Preconditioner == Jacobi {
 		r.lin = newJacobiCG(r.ws, r.slabs, lay.size, mem)
 	} else {
-		r.lin = newMultigridCG(r.ws, r.slabs, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, lay.size, mem)
+		r.lin = newMultigridCG(r.ws, r.slabs, lay, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, mem)
 	}
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances

@@ -1,7 +1,5 @@
 package solver
 
-import "sort"
-
 // At returns the curve's value at temperature t: linear between points,
 // constant beyond the ends.
 func (c Curve) At(t float64) float64 {
@@ -12,7 +10,27 @@ func (c Curve) At(t float64) float64 {
 	if t >= c.T[n-1] {
 		return c.V[n-1]
 	}
-	i := sort.SearchFloat64s(c.T, t) // c.T[i-1] < t <= c.T[i]
+	return c.inside(c.segment(t), t)
+}
+
+// segment returns i with c.T[i-1] < t ≤ c.T[i], for t strictly inside the
+// curve's range: a plain binary search, since the assembly calls it for
+// every cell of every pass.
+func (c Curve) segment(t float64) int {
+	lo, hi := 1, len(c.T)-1
+	for lo < hi {
+		mid := int(uint(lo+hi) >> 1)
+		if c.T[mid] < t {
+			lo = mid + 1
+		} else {
+			hi = mid
+		}
+	}
+	return lo
+}
+
+// inside interpolates within segment i.
+func (c Curve) inside(i int, t float64) float64 {
 	w := (t - c.T[i-1]) / (c.T[i] - c.T[i-1])
 	return c.V[i-1] + w*(c.V[i]-c.V[i-1])
 }
@@ -47,20 +65,33 @@ func newEnthalpy(cp Curve, reference float64) enthalpy {
 
 // fromStart integrates cp from the curve's first point to t (negative below it).
 func (e *enthalpy) fromStart(t float64) float64 {
+	h, _ := e.fromStartWithCp(t)
+	return h
+}
+
+// fromStartWithCp is fromStart with cp at t, from one search.
+func (e *enthalpy) fromStartWithCp(t float64) (h, cp float64) {
 	c := e.cp
 	n := len(c.T)
 	if n == 1 || t <= c.T[0] {
-		return c.V[0] * (t - c.T[0])
+		return c.V[0] * (t - c.T[0]), c.V[0]
 	}
 	if t >= c.T[n-1] {
-		return e.cum[n-1] + c.V[n-1]*(t-c.T[n-1])
+		return e.cum[n-1] + c.V[n-1]*(t-c.T[n-1]), c.V[n-1]
 	}
-	i := sort.SearchFloat64s(c.T, t)
-	return e.cum[i-1] + 0.5*(c.V[i-1]+c.At(t))*(t-c.T[i-1])
+	i := c.segment(t)
+	cp = c.inside(i, t)
+	return e.cum[i-1] + 0.5*(c.V[i-1]+cp)*(t-c.T[i-1]), cp
 }
 
 // At returns the enthalpy at t relative to the reference temperature, J/kg.
 func (e *enthalpy) At(t float64) float64 { return e.fromStart(t) - e.ref }
+
+// AtWithCp returns At(t) and cp at t, from one search.
+func (e *enthalpy) AtWithCp(t float64) (h, cp float64) {
+	h, cp = e.fromStartWithCp(t)
+	return h - e.ref, cp
+}
 
 // Integral returns ∫ c dT from a to b (K), exact for the piecewise-linear
 // curve: for a specific heat, the enthalpy change per kilogram.

@@ -680,13 +680,13 @@ func (r *run) fill(w int) {
 				continue
 			}
 			ts := r.tstar[i]
-			cp := m.cp.At(ts)
+			hs, cp := m.h.AtWithCp(ts)
 			old := a1 * m.h.At(r.tn[i])
 			if a2 != 0 {
 				old -= a2 * m.h.At(r.tnm1[i])
 			}
 			st.diag[i] = a0*capacity*cp + gsum
-			r.b[i] = capacity * (old - a0*(m.h.At(ts)-cp*ts))
+			r.b[i] = capacity * (old - a0*(hs-cp*ts))
 		}
 	}
 }

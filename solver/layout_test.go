@@ -120,7 +120,8 @@ func keptAt(l *layout, x, y, z int) (int, bool) {
 
 // TestOddShapesSolve takes a step on boxes one cell thin, a rod, a
 // scattering of separate cells and a hollow frame, with multigrid and with
-// the Jacobi reference, with and without the vector kernels: every solve
+// the Jacobi reference, with and without the vector kernels, on two
+// threads and on one: every solve
 // meets its tolerance by its true residual and the solutions agree as the
 // residuals allow. These are the shapes where a layout or a wavefront
 // mistake would show: rows and planes with nothing in them, neighbours
@@ -154,30 +155,41 @@ func TestOddShapesSolve(t *testing.T) {
 			}
 			dt := 200 * cell * cell * 3.6e6 / 40
 			var first []float64
+			type path struct {
+				pre     string
+				vector  bool
+				threads int
+			}
+			var paths []path
 			for _, pre := range []string{Multigrid, Jacobi} {
 				for _, vector := range []bool{true, false} {
-					if vector && !haveVector() {
-						continue
-					}
-					p := problemFor(g, constantMaterial(40, 1, 3.6e6), convection(100, 293), 1073, 3600)
-					p.Stepping.Preconditioner, p.Stepping.Tolerance = pre, 1e-10
-					p.Threads = 2 // two slabs where the part is large enough
-					r := newRunOn(p, vector)
-					r.initialState()
-					_, err := r.step(context.Background(), 0, dt, 0, backwardEulerCoefficients)
-					r.ws.stop()
-					if err != nil {
-						t.Fatalf("%s, vector %v: %v", pre, vector, err)
-					}
-					if first == nil {
-						first = append([]float64(nil), r.t...)
-						continue
-					}
-					for c := range first {
-						// 1073 K, relative residual 1e-10: micro-kelvins.
-						if d := math.Abs(r.t[c] - first[c]); d > 1e-4 {
-							t.Fatalf("%s, vector %v: cell %d differs by %g K from multigrid with vector kernels", pre, vector, c, d)
-						}
+					// two slabs where the part is large enough
+					paths = append(paths, path{pre, vector, 2})
+				}
+			}
+			paths = append(paths, path{Multigrid, true, 1})
+			for _, pp := range paths {
+				if pp.vector && !haveVector() {
+					continue
+				}
+				p := problemFor(g, constantMaterial(40, 1, 3.6e6), convection(100, 293), 1073, 3600)
+				p.Stepping.Preconditioner, p.Stepping.Tolerance = pp.pre, 1e-10
+				p.Threads = pp.threads
+				r := newRunOn(p, pp.vector)
+				r.initialState()
+				_, err := r.step(context.Background(), 0, dt, 0, backwardEulerCoefficients)
+				r.ws.stop()
+				if err != nil {
+					t.Fatalf("%+v: %v", pp, err)
+				}
+				if first == nil {
+					first = append([]float64(nil), r.t...)
+					continue
+				}
+				for c := range first {
+					// 1073 K, relative residual 1e-10: micro-kelvins.
+					if d := math.Abs(r.t[c] - first[c]); d > 1e-4 {
+						t.Fatalf("%+v: cell %d differs by %g K from the first path", pp, c, d)
 					}
 				}
 			}

@@ -52,6 +52,9 @@ type enthalpy struct {
 	cp  Curve
 	cum []float64 // ∫cp dT from cp.T[0] to cp.T[i]
 	ref float64   // integral from cp.T[0] to the reference temperature
+	// constant is cp when it is the same at every temperature (0 when
+	// not): the enthalpy is then constant·(t − reference), no search.
+	constant, reference float64
 }
 
 func newEnthalpy(cp Curve, reference float64) enthalpy {
@@ -60,6 +63,9 @@ func newEnthalpy(cp Curve, reference float64) enthalpy {
 		e.cum[i] = e.cum[i-1] + 0.5*(cp.V[i]+cp.V[i-1])*(cp.T[i]-cp.T[i-1])
 	}
 	e.ref = e.fromStart(reference)
+	if cp.isConstant() {
+		e.constant, e.reference = cp.V[0], reference
+	}
 	return e
 }
 
@@ -85,10 +91,16 @@ func (e *enthalpy) fromStartWithCp(t float64) (h, cp float64) {
 }
 
 // At returns the enthalpy at t relative to the reference temperature, J/kg.
-func (e *enthalpy) At(t float64) float64 { return e.fromStart(t) - e.ref }
+func (e *enthalpy) At(t float64) float64 {
+	h, _ := e.AtWithCp(t)
+	return h
+}
 
 // AtWithCp returns At(t) and cp at t, from one search.
 func (e *enthalpy) AtWithCp(t float64) (h, cp float64) {
+	if e.constant != 0 {
+		return e.constant * (t - e.reference), e.constant
+	}
 	h, cp = e.fromStartWithCp(t)
 	return h - e.ref, cp
 }

@@ -64,11 +64,22 @@ func gather(spans []span, x, p []float64) {
 	}
 }
 
-// sumG returns the sum of the six face conductances of cell c (a layout
-// position) of span sp.
-func (a *stencil) sumG(sp *span, c int) float64 {
-	return float64(a.gx[c]) + float64(a.gx[c-1]) + float64(a.gy[c]) + float64(a.gy[c+sp.ds]) +
-		float64(a.gz[c]) + float64(a.gz[c+sp.dd])
+// faceSum returns the sum of the six face conductances of cell c (a
+// layout position) of span sp.
+func faceSum(gx, gy, gz []float32, sp *span, c int) float64 {
+	return float64(gx[c]) + float64(gx[c-1]) + float64(gy[c]) + float64(gy[c+sp.ds]) +
+		float64(gz[c]) + float64(gz[c+sp.dd])
+}
+
+// stencilReach checks that every cell a stencil kernel reads for span sp
+// lies in its array: the values x and their six neighbours, the
+// conductances of the cells and of their lower neighbours. A layout
+// mistake then panics in Go instead of reading stray memory.
+func stencilReach[T float32 | float64](sp *span, x []T, gx, gy, gz []float32) {
+	c, n := sp.cp, sp.hi-sp.lo
+	_, _, _, _, _ = x[c-1:c+n+1], x[c+sp.dn:c+sp.dn+n], x[c+sp.ds:c+sp.ds+n], x[c+sp.du:c+sp.du+n], x[c+sp.dd:c+sp.dd+n]
+	_, _, _ = gx[c-1:c+n], gy[c+sp.ds:c+sp.ds+n], gz[c+sp.dd:c+sp.dd+n]
+	_, _ = gy[c:c+n], gz[c:c+n]
 }
 
 // linearSolver solves the symmetric positive definite system of one Newton
@@ -296,11 +307,8 @@ func (a *stencil) product(spans []span, p, q []float64) float64 {
 		c, n := sp.cp, sp.hi-sp.lo
 		dn, ds, du, dd := sp.dn, sp.ds, sp.du, sp.dd
 		if a.vector {
-			// Every cell the kernel reads, checked.
-			_, _, _, _ = p[c-1:c+n+1], p[c+dn:c+dn+n], p[c+ds:c+ds+n], p[c+du:c+du+n]
-			_, _, _ = p[c+dd:c+dd+n], a.diag[sp.at:sp.at+n], q[sp.at:sp.at+n]
-			_, _, _ = a.gx[c-1:c+n], a.gy[c+ds:c+ds+n], a.gz[c+dd:c+dd+n]
-			_, _ = a.gy[c:c+n], a.gz[c:c+n]
+			stencilReach(&sp, p, a.gx, a.gy, a.gz)
+			_, _ = a.diag[sp.at:sp.at+n], q[sp.at:sp.at+n]
 			pq += productAVX(n, dn, ds, du, dd, &p[c], &a.gx[c], &a.gy[c], &a.gz[c], &a.diag[sp.at], &q[sp.at])
 			continue
 		}

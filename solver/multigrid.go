@@ -61,10 +61,11 @@ type mgLevel struct {
 	// span, and every span on other CPUs, takes the portable loop).
 	vector bool
 	// b is the right-hand side, x the solution and xNext the other half of
-	// its ping-pong pair (the odd smoothing steps write it, the even ones
-	// x, so a cycle leaves its result in x). d is the Chebyshev direction, then the scaled
-	// residual handed to the coarser level; during set-up it holds the
-	// cells' own terms (the diagonal without the face conductances).
+	// its ping-pong pair (the first, third … smoothing steps write it, the
+	// others x, so a cycle leaves its result in x). d is the Chebyshev
+	// direction, then the scaled residual handed to the coarser level;
+	// during set-up it holds the cells' own terms (the diagonal without
+	// the face conductances).
 	b, x, xNext, d []float32
 	// scale is 1 / (sum of the interpolation weights of the coarse cells
 	// in the part), per cell; nil on the coarsest level.
@@ -363,14 +364,12 @@ func (l *mgLevel) rows(sp span, x []float32) rows {
 }
 
 // reach checks that every cell a stencil kernel reads for span sp lies in
-// its array (the values x = src and their neighbours, the conductances of
-// the cells and of their lower neighbours, the inverse diagonal) and
-// returns the first of each, for the AVX2 kernels.
+// its array (stencilReach, and the inverse diagonal) and returns the first
+// of each, for the AVX2 kernels.
 func (l *mgLevel) reach(sp span, x []float32) (xp, gx, gy, gz, inv *float32) {
-	c, n := sp.cp, sp.hi-sp.lo
-	_, _, _, _, _ = x[c-1:c+n+1], x[c+sp.dn:c+sp.dn+n], x[c+sp.ds:c+sp.ds+n], x[c+sp.du:c+sp.du+n], x[c+sp.dd:c+sp.dd+n]
-	_, _, _ = l.gx[c-1:c+n], l.gy[c+sp.ds:c+sp.ds+n], l.gz[c+sp.dd:c+sp.dd+n]
-	_, _, _ = l.gy[c:c+n], l.gz[c:c+n], l.inv[sp.at:sp.at+n]
+	c := sp.cp
+	stencilReach(&sp, x, l.gx, l.gy, l.gz)
+	_ = l.inv[sp.at : sp.at+sp.hi-sp.lo]
 	return &x[c], &l.gx[c], &l.gy[c], &l.gz[c], &l.inv[sp.at]
 }
 
@@ -665,8 +664,7 @@ func (l *mgLevel) diagonal(w int) {
 	hi := 0.0
 	for _, sp := range l.slabs[w] {
 		for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
-			g := float64(l.gx[c]) + float64(l.gx[c-1]) + float64(l.gy[c]) + float64(l.gy[c+sp.ds]) +
-				float64(l.gz[c]) + float64(l.gz[c+sp.dd])
+			g := faceSum(l.gx, l.gy, l.gz, &sp, c)
 			inv := 1 / (float64(l.d[c]) + g)
 			l.inv[i] = float32(inv)
 			hi = max(hi, 1+g*inv)

@@ -64,7 +64,7 @@ func linearStep(t *testing.T, p *Problem, dt float64, preconditioner string) (x 
 			for i, c := sp.at, sp.cp; i < sp.at+sp.hi-sp.lo; i, c = i+1, c+1 {
 				rr += (r.b[i] - ax[i]) * (r.b[i] - ax[i])
 				bb += r.b[i] * r.b[i]
-				lambda = min(lambda, a.diag[i]-a.sumG(&sp, c))
+				lambda = min(lambda, a.diag[i]-faceSum(a.gx, a.gy, a.gz, &sp, c))
 			}
 		}
 	}

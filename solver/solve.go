@@ -85,10 +85,6 @@ type material struct {
 	k    Curve
 	cp   Curve
 	h    enthalpy
-	// constantCp holds cp when it is the same at every temperature, 0
-	// otherwise: the enthalpy is then cp·(T − initial) and the
-	// assembly skips the curve lookups.
-	constantCp float64
 }
 
 // run is the working state of one Solve.
@@ -170,12 +166,8 @@ func newRunOn(p *Problem, vector bool) *run {
 	vol := g.CellSize * g.CellSize * g.CellSize
 	r.linear, r.constantK = true, true
 	for _, m := range p.Materials {
-		mat := material{rhoV: m.Density * vol, k: m.Conductivity, cp: m.SpecificHeat,
-			h: newEnthalpy(m.SpecificHeat, p.Initial)}
-		if m.SpecificHeat.isConstant() {
-			mat.constantCp = m.SpecificHeat.At(p.Initial)
-		}
-		r.mats = append(r.mats, mat)
+		r.mats = append(r.mats, material{rhoV: m.Density * vol, k: m.Conductivity, cp: m.SpecificHeat,
+			h: newEnthalpy(m.SpecificHeat, p.Initial)})
 		if !m.Conductivity.isConstant() {
 			r.constantK, r.linear = false, false
 		}
@@ -666,19 +658,12 @@ func (r *run) faceConductances(w int) {
 func (r *run) fill(w int) {
 	g, st := r.g, &r.st
 	a0, a1, a2 := r.coef.a0, r.coef.a1, r.coef.a2
-	ref := r.p.Initial // the enthalpy's zero
 	for _, sp := range r.slabs[w] {
 		for i, c := sp.at, sp.lo; c < sp.hi; i, c = i+1, c+1 {
 			m := &r.mats[g.Region[c-r.pad]-1]
 			capacity := m.rhoV / r.dt
 			// A conductance to a cell outside the part is 0.
-			gsum := st.sumG(&sp, sp.cp+c-sp.lo)
-			if cp := m.constantCp; cp != 0 {
-				// h(T) = cp·(T − ref), so h(T*) − cp·T* = −cp·ref.
-				st.diag[i] = a0*capacity*cp + gsum
-				r.b[i] = capacity * cp * (a1*(r.tn[i]-ref) - a2*(r.tnm1[i]-ref) + a0*ref)
-				continue
-			}
+			gsum := faceSum(st.gx, st.gy, st.gz, &sp, sp.cp+c-sp.lo)
 			ts := r.tstar[i]
 			hs, cp := m.h.AtWithCp(ts)
 			old := a1 * m.h.At(r.tn[i])
@@ -732,15 +717,10 @@ func (r *run) boundaryFlow() float64 {
 
 // storedEnergy returns Σ ρV·H(T) over the part, J since the start.
 func (r *run) storedEnergy() float64 {
-	ref := r.p.Initial // the enthalpy's zero
 	r.eachSlab(func(w int) {
 		sum := 0.0
 		r.slabParts(w, func(c, _ int, m *material) {
-			if m.constantCp != 0 {
-				sum += m.rhoV * m.constantCp * (r.t[c] - ref)
-			} else {
-				sum += m.rhoV * m.h.At(r.t[c])
-			}
+			sum += m.rhoV * m.h.At(r.t[c])
 		})
 		r.acc[w] = partial{a: sum}
 	})

@@ -39,6 +39,12 @@ func TestMeasureMatchesSolve(t *testing.T) {
 			if !(m.BytesMoved > 0) || m.MemoryBytes < 10*8*1000 || !(m.Seconds > 0) {
 				t.Errorf("measurement %+v lacks traffic, memory or time", m)
 			}
+			// Pass by pass, the cycles move more bytes by the model: every
+			// pass reads its operands, where a fused sweep reads them once.
+			if withCycles := pre == Multigrid; withCycles != (m.PassCycleSeconds > 0) ||
+				withCycles != (m.PassCycleBytesMoved > 2*m.CycleBytesMoved) {
+				t.Errorf("%s: cycles fused %g s, %g B; pass by pass %g s, %g B", pre, m.CycleSeconds, m.CycleBytesMoved, m.PassCycleSeconds, m.PassCycleBytesMoved)
+			}
 			run, err := MeasureRun(context.Background(), p)
 			if err != nil {
 				t.Fatal(err)

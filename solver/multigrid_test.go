@@ -174,3 +174,58 @@ func TestSolveAllocatesNothing(t *testing.T) {
 		}
 	}
 }
+
+// TestPassByPassIsTheSameCycle: the V-cycle run pass by pass (the bench's
+// reference for the fused sweeps) must give the fused cycle's result to
+// the last bit, on the bracket and on a part whose slabs hold empty
+// planes, on two threads and on one.
+func TestPassByPassIsTheSameCycle(t *testing.T) {
+	t.Parallel()
+	const cell = 1e-3
+	gaps := testGrid(testPart{n: [3]int{21, 21, 50}, cell: cell, inside: func(p [3]float64) bool {
+		k := int(p[2] / cell)
+		return k < 20 || k >= 30
+	}})
+	for _, tc := range []struct {
+		name    string
+		g       *mesh.Grid
+		threads int
+	}{
+		{"bracket", bracketGrid(24), 2},
+		{"bracket on one thread", bracketGrid(24), 1},
+		{"blocks with empty planes between", gaps, 2},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			t.Parallel()
+			p := problemFor(tc.g, constantMaterial(40, 1, 3.6e6), convection(100, 293), 1073, 3600)
+			p.Stepping.Preconditioner, p.Threads = Multigrid, tc.threads
+			if len(tc.g.Groups) > 1 { // the bracket's second material, 1000 times as conductive
+				p.Materials = append(p.Materials, constantMaterial(40e3, 1, 3.6e6))
+				p.Exposures = []Exposure{convection(100, 293), convection(100, 293)}
+			}
+			r := newRun(p)
+			defer r.ws.stop()
+			r.initialState()
+			if _, err := r.step(context.Background(), 0, 200*cell*cell*3.6e6/40, 0, backwardEulerCoefficients); err != nil {
+				t.Fatal(err)
+			}
+			mg := r.lin.(*multigridCG).mg
+			fine := mg.levels[0]
+			for i := range fine.b {
+				fine.b[i] = float32(math.Sin(float64(i)))
+			}
+			mg.apply()
+			fused := append([]float32(nil), fine.x...)
+			mg.passByPass = true
+			mg.apply()
+			for c := range fused {
+				if fine.x[c] != fused[c] {
+					t.Fatalf("layout position %d: %g pass by pass, %g fused", c, fine.x[c], fused[c])
+				}
+			}
+			if fused[fine.slabs[0][0].cp] == 0 {
+				t.Fatal("the cycle left the first cell at 0")
+			}
+		})
+	}
+}

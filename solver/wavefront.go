@@ -44,13 +44,22 @@ type wavefront struct {
 	stages []stage
 	band   int // the stage the band task runs
 	// bandTask runs stage band on the end planes of slab w; sweepTask
-	// runs the sweep of slab w.
+	// runs the sweep of slab w; passTasks[s] runs stage s alone over slab
+	// w, for the pass-by-pass reference.
 	bandTask, sweepTask func(int)
+	passTasks           []func(int)
 }
 
 func newWavefront(l *mgLevel, stages []stage) *wavefront {
 	f := &wavefront{l: l, stages: stages}
 	f.bandTask, f.sweepTask = f.runBand, f.sweep
+	for s := range stages {
+		f.passTasks = append(f.passTasks, func(w int) {
+			for _, plane := range f.l.planes[w] {
+				f.l.runStage(w, &f.stages[s], plane)
+			}
+		})
+	}
 	return f
 }
 
@@ -83,13 +92,40 @@ func (f *wavefront) sweep(w int) {
 	}
 }
 
-// run runs the wavefront over every slab of its level.
-func (mg *multigrid) runWavefront(f *wavefront) {
+// runWavefront runs the wavefront over every slab of its level and
+// returns the bytes it moved by the traffic model: one sweep of memory, or
+// one per stage when the multigrid runs pass by pass.
+func (mg *multigrid) runWavefront(f *wavefront, sweepBytes float64) float64 {
+	if mg.passByPass {
+		moved := 0.0
+		for s, task := range f.passTasks {
+			mg.run(f.l, task)
+			moved += f.stages[s].kind.passBytes()
+		}
+		return moved * float64(f.l.cells)
+	}
 	for s := range len(f.stages) - 1 {
 		f.band = s
 		mg.run(f.l, f.bandTask)
 	}
 	mg.run(f.l, f.sweepTask)
+	return sweepBytes * float64(f.l.cells)
+}
+
+// passBytes is what a stage of this kind reads and writes per part cell
+// when it runs as a pass of its own (float32 = 4 bytes; neighbours come
+// from cache, writes counted once as the triad counts them).
+func (k stageKind) passBytes() float64 {
+	switch k {
+	case stageFromZero:
+		return 4 * 4 // b and the inverse diagonal in; d and x' out
+	case stageSmooth:
+		return 9 * 4 // x, the stencil (four arrays), b and d in; d and x' out
+	case stageResidual:
+		return 8 * 4 // x, the stencil, b and scale in; d out
+	default: // stageProlong
+		return 3*4 + 4.0/8 // scale in, x read and written, a coarse value per eight cells
+	}
 }
 
 // planesOf splits each slab's spans into groups of one z-plane each, in order.

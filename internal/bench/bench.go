@@ -65,8 +65,15 @@ type Result struct {
 	CellIterationsPerSecond float64 `json:"cell_iterations_per_second"`
 	BandwidthGBs            float64 `json:"bandwidth_gbs"` // linear solver's modelled traffic / time
 	// CycleGBs is the multigrid V-cycles' modelled traffic over their own
-	// wall time, set-up and the CG passes left out.
-	CycleGBs                float64 `json:"cycle_gbs"`
+	// wall time, set-up and the CG passes left out; the model counts each
+	// array once per fused sweep of a level.
+	CycleGBs float64 `json:"cycle_gbs"`
+	// PassCycleGBs is the same for the block steps solved again with every
+	// pass of the V-cycles on its own, each moving its operands (the
+	// in-run reference of the fused sweeps; 0 for the whole run), and
+	// FusedSpeedup its cycle time over the fused cycles'.
+	PassCycleGBs            float64 `json:"pass_cycle_gbs"`
+	FusedSpeedup            float64 `json:"fused_speedup"`
 	TriadGBs                float64 `json:"triad_gbs"`
 	BytesPerCell            float64 `json:"bytes_per_cell"` // solver memory per part cell
 	ReferenceIterations     float64 `json:"reference_iterations"`
@@ -175,7 +182,12 @@ func measured(measure func(preconditioner string) (solver.Measurement, error)) (
 		return Result{}, errors.New("no step was timed")
 	}
 	steps := float64(mg.Steps)
+	var passGBs, fused float64
+	if mg.PassCycleSeconds > 0 {
+		passGBs, fused = mg.PassCycleBytesMoved/mg.PassCycleSeconds/1e9, mg.PassCycleSeconds/mg.CycleSeconds
+	}
 	return Result{
+		PassCycleGBs: passGBs, FusedSpeedup: fused,
 		Cells: mg.Cells, Steps: mg.Steps,
 		Iterations:              float64(mg.Iterations) / steps,
 		SecondsPerStep:          mg.Seconds / steps,
@@ -284,16 +296,20 @@ func WriteText(w io.Writer, results []Result) error {
 	if _, err := fmt.Fprintf(w, "threads %d, triad bandwidth %.1f GB/s\n", r0.Threads, r0.TriadGBs); err != nil {
 		return err
 	}
-	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %6s  %6s %9s %7s\n",
-		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "cycle%", "B/cell",
-		"ref it", "ref s", "speedup"); err != nil {
+	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %7s %6s %6s  %6s %9s %7s\n",
+		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "cycle%", "pass%", "fused",
+		"B/cell", "ref it", "ref s", "speedup"); err != nil {
 		return err
 	}
 	for _, r := range results {
-		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f%% %6.0f  %6.1f %9.3f %6.1f×\n",
+		pass, fused := "—", "—" // no pass-by-pass reference for a whole run
+		if r.PassCycleGBs > 0 {
+			pass, fused = fmt.Sprintf("%.0f%%", 100*r.PassCycleGBs/r.TriadGBs), fmt.Sprintf("%.2f×", r.FusedSpeedup)
+		}
+		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f%% %7s %6s %6.0f  %6.1f %9.3f %6.1f×\n",
 			r.Case, r.CellFourier, r.Cells, r.Iterations, r.SecondsPerStep, r.CellIterationsPerSecond,
-			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, 100*r.CycleGBs/r.TriadGBs, r.BytesPerCell,
-			r.ReferenceIterations, r.ReferenceSecondsPerStep, r.Speedup); err != nil {
+			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, 100*r.CycleGBs/r.TriadGBs, pass, fused,
+			r.BytesPerCell, r.ReferenceIterations, r.ReferenceSecondsPerStep, r.Speedup); err != nil {
 			return err
 		}
 	}

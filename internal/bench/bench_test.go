@@ -38,6 +38,10 @@ func TestRunSmall(t *testing.T) {
 		}
 	}
 	for i, fo := range []float64{20, 2000} {
+		// The block steps carry the pass-by-pass reference of the cycles.
+		if r := results[i]; !(r.PassCycleGBs > 0) || !(r.FusedSpeedup > 0) {
+			t.Errorf("block case %d: pass-by-pass cycles %g GB/s, fused speed-up %g", i, r.PassCycleGBs, r.FusedSpeedup)
+		}
 		if r := results[i]; r.N != n || r.Cells != n*n*n || r.CellFourier != fo || r.Steps != 1 {
 			t.Errorf("block case %d: n %d, %d cells, Fo %g, %d steps; want %d, %d, %g, 1", i, r.N, r.Cells, r.CellFourier, r.Steps, n, n*n*n, fo)
 		}

@@ -476,3 +476,58 @@ prolLoop:
 prolDone:
 	VZEROUPPER
 	RET
+
+// func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool)
+// dst = w₀·r₀ + w₁·r₁ + w₂·r₂ + w₃·r₃, plus dst's own value when add.
+TEXT ·blend4AVX(SB), NOSPLIT, $0-57
+	MOVQ n+0(FP), CX
+	ANDQ $-8, CX
+	MOVQ w+8(FP), R9
+	VBROADCASTSS 0(R9), Y12
+	VBROADCASTSS 4(R9), Y13
+	VBROADCASTSS 8(R9), Y14
+	VBROADCASTSS 12(R9), Y15
+	MOVQ r0+16(FP), SI
+	MOVQ r1+24(FP), DI
+	MOVQ r2+32(FP), R8
+	MOVQ r3+40(FP), R10
+	MOVQ dst+48(FP), R11
+	MOVBLZX add+56(FP), DX
+	XORQ AX, AX
+	CMPQ AX, CX
+	JGE blendTail
+blendLoop:
+	VMULPS (SI)(AX*4), Y12, Y0
+	VMULPS (DI)(AX*4), Y13, Y1
+	VFMADD231PS (R8)(AX*4), Y14, Y0
+	VFMADD231PS (R10)(AX*4), Y15, Y1
+	VADDPS Y1, Y0, Y0
+	TESTQ DX, DX
+	JZ blendStore
+	VADDPS (R11)(AX*4), Y0, Y0
+blendStore:
+	VMOVUPS Y0, (R11)(AX*4)
+	ADDQ $8, AX
+	CMPQ AX, CX
+	JLT blendLoop
+blendTail:
+	MOVQ n+0(FP), CX
+	CMPQ AX, CX
+	JGE blendDone
+blendTailLoop:
+	VMULSS (SI)(AX*4), X12, X0
+	VMULSS (DI)(AX*4), X13, X1
+	VFMADD231SS (R8)(AX*4), X14, X0
+	VFMADD231SS (R10)(AX*4), X15, X1
+	VADDSS X1, X0, X0
+	TESTQ DX, DX
+	JZ blendStoreOne
+	VADDSS (R11)(AX*4), X0, X0
+blendStoreOne:
+	VMOVSS X0, (R11)(AX*4)
+	INCQ AX
+	CMPQ AX, CX
+	JLT blendTailLoop
+blendDone:
+	VZEROUPPER
+	RET

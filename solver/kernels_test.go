@@ -80,6 +80,23 @@ func TestVectorKernelsMatchLoops(t *testing.T) {
 	}
 	compare("prolongation", prolong(true), prolong(false))
 
+	// Restriction blends rows of the fine residual into the coarse
+	// right-hand side, per coarse slab.
+	fill(l.d)
+	restrict := func(vector bool) []float32 {
+		l.vector = vector
+		for w := range l.next.slabs {
+			l.restrict(w)
+		}
+		return append([]float32(nil), l.next.b...)
+	}
+	bv, bl := restrict(true), restrict(false)
+	for i := range bl {
+		if math.Abs(float64(bv[i]-bl[i])) > 1e-5*math.Abs(float64(bl[i])) {
+			t.Fatalf("restriction at coarse part cell %d: vector %g, loop %g", i, bv[i], bl[i])
+		}
+	}
+
 	// The CG product, in float64 with float32 conductances.
 	a := &r.st
 	pv := make([]float64, len(a.gx)) // in the layout

@@ -484,17 +484,11 @@ func (l *mgLevel) prolong(w int, spans []span) {
 		cl := c.lay
 		r00, r01 := cl.neighbour(cl.row(y0, z0), lo), cl.neighbour(cl.row(y0, z1), lo)
 		r10, r11 := cl.neighbour(cl.row(y1, z0), lo), cl.neighbour(cl.row(y1, z1), lo)
-		w00, w01, w10, w11 := wy0*wz0, wy0*wz1, wy1*wz0, wy1*wz1
-		b := row[lo+1 : hi+1]
-		clear(b)
-		for _, t := range [4]struct {
-			w  float32
-			at int
-		}{{w00, r00}, {w01, r01}, {w10, r10}, {w11, r11}} {
-			if t.w != 0 {
-				axpy(l.vector, t.w, cx[t.at:t.at+hi-lo], b)
-			}
-		}
+		// A weight of 0 comes with its row equal to the parents' (the
+		// interpolation's single-parent case), so every row is a kept one.
+		m := hi - lo
+		blend4(l.vector, &[4]float32{wy0 * wz0, wy0 * wz1, wy1 * wz0, wy1 * wz1},
+			&[4][]float32{cx[r00 : r00+m], cx[r01 : r01+m], cx[r10 : r10+m], cx[r11 : r11+m]}, row[lo+1:hi+1], false)
 		xs, sc := x[sp.cp:sp.cp+sp.hi-sp.lo], scale[sp.at:sp.at+sp.hi-sp.lo]
 		sc = sc[:len(xs)]
 		if f[0] == 1 {
@@ -567,10 +561,35 @@ func (l *mgLevel) restrict(w int) {
 		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
 		first, last := sp.x, sp.x+sp.hi-sp.lo-1
 		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
-		clear(row[lo+1 : hi+1])
-		// Blend the fine rows, each over the cells its layout keeps: the
-		// residual is 0 at every other cell.
+		// Blend the fine rows, four (one z, every y) at a time where each
+		// row keeps the whole stretch; otherwise each over the cells its
+		// layout keeps: the residual is 0 at every other cell.
+		written := false
 		for a := range nz {
+			var w [4]float32
+			var fine [4][]float32
+			whole := true
+			for b := range 4 {
+				yb := ys[min(b, ny-1)] // rows past ny repeat the last with weight 0
+				at, ok := l.lay.covering(l.lay.row(yb, zs[a]), lo, hi)
+				if !ok {
+					whole = false
+					break
+				}
+				fine[b] = d[at : at+hi-lo]
+				if b < ny {
+					w[b] = wzs[a] * wys[b]
+				}
+			}
+			if whole {
+				blend4(l.vector, &w, &fine, row[lo+1:hi+1], written)
+				written = true
+				continue
+			}
+			if !written {
+				clear(row[lo+1 : hi+1])
+				written = true
+			}
 			for b := range ny {
 				r := l.lay.row(ys[b], zs[a])
 				for _, rn := range l.lay.runs[l.lay.first[r]:l.lay.first[r+1]] {

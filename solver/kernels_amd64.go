@@ -8,10 +8,7 @@ func haveVector() bool { return cpu.X86.HasAVX2 && cpu.X86.HasFMA }
 // The kernels of kernels_amd64.s; see there for what they expect.
 
 //go:noescape
-func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
-
-//go:noescape
-func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32)
+func residualSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, scale, d *float32)
 
 //go:noescape
 func productAVX(n, dn, ds, du, dd int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
@@ -36,3 +33,6 @@ func prolongAVX(parents int, row, scale, x *float32)
 
 //go:noescape
 func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool)
+
+//go:noescape
+func chebyshevSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)

@@ -21,17 +21,6 @@
 	ADDQ $k, R8; \
 	ADDQ $k, R15
 
-// STENCIL_ARGS loads the arguments the float32 stencil kernels share:
-// the values x and the conductances (SI, DI, R9, R10), the inverse
-// diagonal (R11) and the right-hand side (R12).
-#define STENCIL_ARGS \
-	MOVQ x+40(FP), SI; \
-	MOVQ gx+48(FP), DI; \
-	MOVQ gy+56(FP), R9; \
-	MOVQ gz+64(FP), R10; \
-	MOVQ inv+72(FP), R11; \
-	MOVQ b+80(FP), R12
-
 // SUM_NEIGHBOURS32 adds Σ g·x over the six neighbours to Y0 (eight cells).
 #define SUM_NEIGHBOURS32 \
 	VMOVUPS (DI)(AX*4), Y1; \
@@ -62,101 +51,120 @@
 	VMOVSS (R10)(R15*4), X6; \
 	VFMADD231SS (SI)(R15*4), X6, X0
 
+// CHEBYSHEV8 is one Chebyshev step on eight cells from AX on: values,
+// stencil and right-hand side as SPAN_BEGIN places them, d at R13, the
+// new values at R14, cr and cd broadcast in Y14 and Y15.
+#define CHEBYSHEV8 \
+	VMOVUPS (R12)(AX*4), Y0; \
+	SUM_NEIGHBOURS32; \
+	VMOVUPS (SI)(AX*4), Y7; \
+	VMULPS (R11)(AX*4), Y0, Y0; \
+	VSUBPS Y7, Y0, Y0; \
+	VMULPS (R13)(AX*4), Y15, Y8; \
+	VFMADD231PS Y0, Y14, Y8; \
+	VMOVUPS Y8, (R13)(AX*4); \
+	VADDPS Y7, Y8, Y8; \
+	VMOVUPS Y8, (R14)(AX*4)
+
+// CHEBYSHEV1 is CHEBYSHEV8 for the one cell AX.
+#define CHEBYSHEV1 \
+	VMOVSS (R12)(AX*4), X0; \
+	SUM_NEIGHBOURS32S; \
+	VMOVSS (SI)(AX*4), X7; \
+	VMULSS (R11)(AX*4), X0, X0; \
+	VSUBSS X7, X0, X0; \
+	VMULSS (R13)(AX*4), X15, X8; \
+	VFMADD231SS X0, X14, X8; \
+	VMOVSS X8, (R13)(AX*4); \
+	VADDSS X7, X8, X8; \
+	VMOVSS X8, (R14)(AX*4)
+
+// RESIDUAL8 sets the scaled residual of eight cells from AX on: values,
+// stencil and right-hand side as SPAN_BEGIN places them, scale at R13,
+// the result at R14.
+#define RESIDUAL8 \
+	VMOVUPS (R12)(AX*4), Y0; \
+	SUM_NEIGHBOURS32; \
+	VMOVUPS (SI)(AX*4), Y7; \
+	VDIVPS (R11)(AX*4), Y7, Y7; \
+	VSUBPS Y7, Y0, Y0; \
+	VMULPS (R13)(AX*4), Y0, Y0; \
+	VMOVUPS Y0, (R14)(AX*4)
+
+// RESIDUAL1 is RESIDUAL8 for the one cell AX.
+#define RESIDUAL1 \
+	VMOVSS (R12)(AX*4), X0; \
+	SUM_NEIGHBOURS32S; \
+	VMOVSS (SI)(AX*4), X7; \
+	VDIVSS (R11)(AX*4), X7, X7; \
+	VSUBSS X7, X0, X0; \
+	VMULSS (R13)(AX*4), X0, X0; \
+	VMOVSS X0, (R14)(AX*4)
+
+// Offsets of the span fields the span-list kernels read (a test holds
+// them to the Go struct).
+#define SPAN_LO 0
+#define SPAN_HI 8
+#define SPAN_CP 16
+#define SPAN_DN 24
+#define SPAN_DS 32
+#define SPAN_DU 40
+#define SPAN_DD 48
+#define SPAN_AT 56
+#define SPAN_SIZE 88
+
+// The float32 stencil kernels take a list of spans and the first element
+// of each array: func(spans *span, count int, x, gx, gy, gz, inv, b, e, f
+// *float32, …). For each span, SPAN_BEGIN leaves its length in n-8(SP),
+// the values and conductances (from cp on) in SI, DI, R9 and R10, the
+// inverse diagonal and right-hand side (from at on) in R11 and R12, and
+// 4·cp in AX and 4·at in R13 for the kernel to place e and f; SPAN_LOOP
+// then sets the neighbour indices, moves to the next span and starts the
+// cell loop (AX = 0, CX = the length rounded down to eight). The caller
+// has checked once that every span's reach lies in the arrays.
+#define SPAN_BEGIN(done) \
+	MOVQ count+8(FP), CX; \
+	TESTQ CX, CX; \
+	JLE done; \
+	DECQ CX; \
+	MOVQ CX, count+8(FP); \
+	MOVQ spans+0(FP), CX; \
+	MOVQ SPAN_HI(CX), AX; \
+	SUBQ SPAN_LO(CX), AX; \
+	MOVQ AX, n-8(SP); \
+	MOVQ SPAN_AT(CX), R13; \
+	SHLQ $2, R13; \
+	MOVQ inv+48(FP), R11; \
+	ADDQ R13, R11; \
+	MOVQ b+56(FP), R12; \
+	ADDQ R13, R12; \
+	MOVQ SPAN_CP(CX), AX; \
+	SHLQ $2, AX; \
+	MOVQ x+16(FP), SI; \
+	ADDQ AX, SI; \
+	MOVQ gx+24(FP), DI; \
+	ADDQ AX, DI; \
+	MOVQ gy+32(FP), R9; \
+	ADDQ AX, R9; \
+	MOVQ gz+40(FP), R10; \
+	ADDQ AX, R10
+
+#define SPAN_LOOP \
+	MOVQ SPAN_DN(CX), DX; \
+	MOVQ SPAN_DS(CX), BX; \
+	MOVQ SPAN_DU(CX), R8; \
+	MOVQ SPAN_DD(CX), R15; \
+	ADDQ $SPAN_SIZE, CX; \
+	MOVQ CX, spans+0(FP); \
+	MOVQ n-8(SP), CX; \
+	ANDQ $-8, CX; \
+	XORQ AX, AX
+
 // HSUM_PD leaves the sum of the four doubles of Y in the low lane of X.
 #define HSUM_PD(Y, X) \
 	VEXTRACTF128 $1, Y, X10; \
 	VADDPD X10, X, X; \
 	VHADDPD X, X, X
-
-// func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
-// d ← cd·d + cr·(inv·(b + Σ g·x_nb) − x), dst = x + d.
-TEXT ·chebyshevAVX(SB), NOSPLIT, $0-112
-	MOVQ n+0(FP), CX
-	ANDQ $-8, CX
-	NEIGHBOUR_INDICES
-	STENCIL_ARGS
-	MOVQ d+88(FP), R13
-	MOVQ dst+96(FP), R14
-	VBROADCASTSS cr+104(FP), Y14
-	VBROADCASTSS cd+108(FP), Y15
-	CMPQ AX, CX
-	JGE chebTail
-chebLoop:
-	VMOVUPS (R12)(AX*4), Y0
-	SUM_NEIGHBOURS32
-	VMOVUPS (SI)(AX*4), Y7
-	VMULPS (R11)(AX*4), Y0, Y0
-	VSUBPS Y7, Y0, Y0
-	VMULPS (R13)(AX*4), Y15, Y8
-	VFMADD231PS Y0, Y14, Y8
-	VMOVUPS Y8, (R13)(AX*4)
-	VADDPS Y7, Y8, Y8
-	VMOVUPS Y8, (R14)(AX*4)
-	STEP_INDICES(8)
-	CMPQ AX, CX
-	JLT chebLoop
-chebTail:
-	MOVQ n+0(FP), CX
-	CMPQ AX, CX
-	JGE chebDone
-chebTailLoop:
-	VMOVSS (R12)(AX*4), X0
-	SUM_NEIGHBOURS32S
-	VMOVSS (SI)(AX*4), X7
-	VMULSS (R11)(AX*4), X0, X0
-	VSUBSS X7, X0, X0
-	VMULSS (R13)(AX*4), X15, X8
-	VFMADD231SS X0, X14, X8
-	VMOVSS X8, (R13)(AX*4)
-	VADDSS X7, X8, X8
-	VMOVSS X8, (R14)(AX*4)
-	STEP_INDICES(1)
-	CMPQ AX, CX
-	JLT chebTailLoop
-chebDone:
-	VZEROUPPER
-	RET
-
-// func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32)
-// d = scale·(b + Σ g·x_nb − x/inv).
-TEXT ·residualAVX(SB), NOSPLIT, $0-104
-	MOVQ n+0(FP), CX
-	ANDQ $-8, CX
-	NEIGHBOUR_INDICES
-	STENCIL_ARGS
-	MOVQ scale+88(FP), R13
-	MOVQ d+96(FP), R14
-	CMPQ AX, CX
-	JGE resTail
-resLoop:
-	VMOVUPS (R12)(AX*4), Y0
-	SUM_NEIGHBOURS32
-	VMOVUPS (SI)(AX*4), Y7
-	VDIVPS (R11)(AX*4), Y7, Y7
-	VSUBPS Y7, Y0, Y0
-	VMULPS (R13)(AX*4), Y0, Y0
-	VMOVUPS Y0, (R14)(AX*4)
-	STEP_INDICES(8)
-	CMPQ AX, CX
-	JLT resLoop
-resTail:
-	MOVQ n+0(FP), CX
-	CMPQ AX, CX
-	JGE resDone
-resTailLoop:
-	VMOVSS (R12)(AX*4), X0
-	SUM_NEIGHBOURS32S
-	VMOVSS (SI)(AX*4), X7
-	VDIVSS (R11)(AX*4), X7, X7
-	VSUBSS X7, X0, X0
-	VMULSS (R13)(AX*4), X0, X0
-	VMOVSS X0, (R14)(AX*4)
-	STEP_INDICES(1)
-	CMPQ AX, CX
-	JLT resTailLoop
-resDone:
-	VZEROUPPER
-	RET
 
 // func productAVX(n, dn, ds, du, dd int, p *float64, gx, gy, gz *float32, diag, q *float64) (pq float64)
 // q = diag·p − Σ g·p_nb; returns Σ p·q.
@@ -529,5 +537,70 @@ blendStoreOne:
 	CMPQ AX, CX
 	JLT blendTailLoop
 blendDone:
+	VZEROUPPER
+	RET
+
+
+// func chebyshevSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+// On each span: d ← cd·d + cr·(inv·(b + Σ g·x_nb) − x), dst = x + d.
+TEXT ·chebyshevSpansAVX(SB), NOSPLIT, $8-88
+	VBROADCASTSS cr+80(FP), Y14
+	VBROADCASTSS cd+84(FP), Y15
+chebSpan:
+	SPAN_BEGIN(chebDone)
+	MOVQ d+64(FP), R13
+	ADDQ AX, R13
+	MOVQ dst+72(FP), R14
+	ADDQ AX, R14
+	SPAN_LOOP
+	CMPQ AX, CX
+	JGE chebTail
+chebLoop:
+	CHEBYSHEV8
+	STEP_INDICES(8)
+	CMPQ AX, CX
+	JLT chebLoop
+chebTail:
+	MOVQ n-8(SP), CX
+	CMPQ AX, CX
+	JGE chebSpan
+chebTailLoop:
+	CHEBYSHEV1
+	STEP_INDICES(1)
+	CMPQ AX, CX
+	JLT chebTailLoop
+	JMP chebSpan
+chebDone:
+	VZEROUPPER
+	RET
+
+// func residualSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, scale, d *float32)
+// On each span: d = scale·(b + Σ g·x_nb − x/inv).
+TEXT ·residualSpansAVX(SB), NOSPLIT, $8-80
+resSpan:
+	SPAN_BEGIN(resDone)
+	MOVQ d+72(FP), R14
+	ADDQ AX, R14
+	MOVQ scale+64(FP), AX
+	ADDQ AX, R13
+	SPAN_LOOP
+	CMPQ AX, CX
+	JGE resTail
+resLoop:
+	RESIDUAL8
+	STEP_INDICES(8)
+	CMPQ AX, CX
+	JLT resLoop
+resTail:
+	MOVQ n-8(SP), CX
+	CMPQ AX, CX
+	JGE resSpan
+resTailLoop:
+	RESIDUAL1
+	STEP_INDICES(1)
+	CMPQ AX, CX
+	JLT resTailLoop
+	JMP resSpan
+resDone:
 	VZEROUPPER
 	RET

@@ -6,11 +6,11 @@ package solver
 // the kernels below are never called.
 func haveVector() bool { return false }
 
-func chebyshevAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32) {
+func chebyshevSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 
-func residualAVX(n, dn, ds, du, dd int, x, gx, gy, gz, inv, b, scale, d *float32) {
+func residualSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, scale, d *float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 

@@ -5,7 +5,20 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+	"unsafe"
 )
+
+// TestSpanOffsets holds the offsets of the span fields that the span-list
+// kernels read (SPAN_LO … SPAN_SIZE in kernels_amd64.s) to the struct.
+func TestSpanOffsets(t *testing.T) {
+	t.Parallel()
+	var sp span
+	got := [...]uintptr{unsafe.Offsetof(sp.lo), unsafe.Offsetof(sp.hi), unsafe.Offsetof(sp.cp), unsafe.Offsetof(sp.dn),
+		unsafe.Offsetof(sp.ds), unsafe.Offsetof(sp.du), unsafe.Offsetof(sp.dd), unsafe.Offsetof(sp.at), unsafe.Sizeof(sp)}
+	if want := [...]uintptr{0, 8, 16, 24, 32, 40, 48, 56, 88}; got != want {
+		t.Errorf("span offsets lo, hi, cp, dn, ds, du, dd, at and size %v; the kernels read %v", got, want)
+	}
+}
 
 // TestVectorKernelsMatchLoops runs each pass that has an AVX2 kernel both
 // ways on the bracket's finest level, filled with random values, and

@@ -124,6 +124,7 @@ func newLevel(n [3]int, slabs [][]span, lay *layout, a *stencil, mem *arrays, ve
 	}
 	l.pre = newWavefront(l, append(pre, stage{kind: stageResidual, src: l.x}))
 	l.post = newWavefront(l, post)
+	l.checkReach()
 	l.prolongTask = func(w int) { l.prolong(w, l.slabs[w]) }
 	l.restrictTask = l.restrict
 	l.coarsenTask = l.coarsen
@@ -366,14 +367,22 @@ func (l *mgLevel) rows(sp span, x []float32) rows {
 	}
 }
 
-// reach checks that every cell a stencil kernel reads for span sp lies in
-// its array (stencilReach, and the inverse diagonal) and returns the first
-// of each, for the AVX2 kernels.
-func (l *mgLevel) reach(sp span, x []float32) (xp, gx, gy, gz, inv *float32) {
-	c := sp.cp
-	stencilReach(&sp, x, l.gx, l.gy, l.gz)
-	_ = l.inv[sp.at : sp.at+sp.hi-sp.lo]
-	return &x[c], &l.gx[c], &l.gy[c], &l.gz[c], &l.inv[sp.at]
+// checkReach panics unless every cell a stencil pass reads or writes for
+// each span lies in the level's arrays: the span-list kernels take the
+// arrays' first elements and trust the spans, so a layout mistake shows
+// here, once, instead of as stray reads. scale, made later, has the
+// length of inv.
+func (l *mgLevel) checkReach() {
+	for _, slab := range l.slabs {
+		for i := range slab {
+			sp := &slab[i]
+			for _, v := range [][]float32{l.x, l.xNext, l.d} {
+				stencilReach(sp, v, l.gx, l.gy, l.gz)
+			}
+			n := sp.hi - sp.lo
+			_, _ = l.inv[sp.at:sp.at+n], l.b[sp.at:sp.at+n]
+		}
+	}
 }
 
 // smoothFromZero runs the first Chebyshev step from x = 0 on spans:
@@ -399,15 +408,16 @@ func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
 // dst = x + d, with x = src.
 func (l *mgLevel) smooth(spans []span, step int, src, dst []float32) {
 	cd, cr := l.cd[step], l.cr[step]
+	if l.vector {
+		if len(spans) > 0 {
+			chebyshevSpansAVX(&spans[0], len(spans), &src[0], &l.gx[0], &l.gy[0], &l.gz[0], &l.inv[0], &l.b[0], &l.d[0], &dst[0], cr, cd)
+		}
+		return
+	}
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		d, next := win(l.d, sp.cp, n)[:len(b)], win(dst, sp.cp, n)[:len(b)]
-		if l.vector {
-			x, gx, gy, gz, inv := l.reach(sp, src)
-			chebyshevAVX(n, sp.dn, sp.ds, sp.du, sp.dd, x, gx, gy, gz, inv, &b[0], &d[0], &next[0], cr, cd)
-			continue
-		}
 		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]
@@ -424,15 +434,16 @@ func (l *mgLevel) smooth(spans []span, step int, src, dst []float32) {
 // residual sets d = scale·(b − A·x) on spans, with x = src: the residual
 // as restriction takes it.
 func (l *mgLevel) residual(spans []span, src []float32) {
+	if l.vector {
+		if len(spans) > 0 {
+			residualSpansAVX(&spans[0], len(spans), &src[0], &l.gx[0], &l.gy[0], &l.gz[0], &l.inv[0], &l.b[0], &l.scale[0], &l.d[0])
+		}
+		return
+	}
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		d, scale := win(l.d, sp.cp, n)[:len(b)], win(l.scale, sp.at, n)[:len(b)]
-		if l.vector {
-			x, gx, gy, gz, inv := l.reach(sp, src)
-			residualAVX(n, sp.dn, sp.ds, sp.du, sp.dd, x, gx, gy, gz, inv, &b[0], &scale[0], &d[0])
-			continue
-		}
 		a := l.rows(sp, src)
 		// Reslicing to len(b) proves every index in range.
 		x, xw, xe, xs, xn, xd, xu := a.x[:n], a.xw[:n], a.xe[:n], a.xs[:n], a.xn[:n], a.xd[:n], a.xu[:n]

@@ -36,3 +36,6 @@ func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool)
 
 //go:noescape
 func chebyshevSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)
+
+//go:noescape
+func restrictRowAVX(n int, row, out *float32)

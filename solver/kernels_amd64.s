@@ -604,3 +604,58 @@ resTailLoop:
 resDone:
 	VZEROUPPER
 	RET
+
+// func restrictRowAVX(n int, row, out *float32)
+// out[I] = ¼·(row[2I] + row[2I+3]) + ¾·(row[2I+1] + row[2I+2]) for I < n:
+// the gather along x of restriction, eight coarse cells at a time from
+// sixteen fine ones split into even and odd cells. The shuffles leave the
+// eight sums in the order 0 1 4 5 2 3 6 7, which one permute puts right.
+TEXT ·restrictRowAVX(SB), NOSPLIT, $0-24
+	MOVQ n+0(FP), CX
+	MOVQ row+8(FP), SI
+	MOVQ out+16(FP), DI
+	VBROADCASTSS threeQuarters<>(SB), Y15
+	VBROADCASTSS quarter<>(SB), Y14
+	MOVQ CX, DX
+	ANDQ $-8, DX
+	XORQ AX, AX // coarse cell
+	XORQ BX, BX // its first fine cell in row
+	CMPQ AX, DX
+	JGE gatherTail
+gatherLoop:
+	VMOVUPS (SI)(BX*4), Y0
+	VMOVUPS 32(SI)(BX*4), Y1
+	VMOVUPS 8(SI)(BX*4), Y2
+	VMOVUPS 40(SI)(BX*4), Y3
+	VSHUFPS $0x88, Y1, Y0, Y4
+	VSHUFPS $0xDD, Y1, Y0, Y5
+	VSHUFPS $0x88, Y3, Y2, Y6
+	VSHUFPS $0xDD, Y3, Y2, Y7
+	VADDPS Y7, Y4, Y4
+	VADDPS Y6, Y5, Y5
+	VMULPS Y14, Y4, Y4
+	VFMADD231PS Y15, Y5, Y4
+	VPERMPD $0xD8, Y4, Y4
+	VMOVUPS Y4, (DI)(AX*4)
+	ADDQ $8, AX
+	ADDQ $16, BX
+	CMPQ AX, DX
+	JLT gatherLoop
+gatherTail:
+	CMPQ AX, CX
+	JGE gatherDone
+gatherTailLoop:
+	VMOVSS (SI)(BX*4), X4
+	VADDSS 12(SI)(BX*4), X4, X4
+	VMOVSS 4(SI)(BX*4), X5
+	VADDSS 8(SI)(BX*4), X5, X5
+	VMULSS X14, X4, X4
+	VFMADD231SS X15, X5, X4
+	VMOVSS X4, (DI)(AX*4)
+	INCQ AX
+	ADDQ $2, BX
+	CMPQ AX, CX
+	JLT gatherTailLoop
+gatherDone:
+	VZEROUPPER
+	RET

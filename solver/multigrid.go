@@ -617,11 +617,7 @@ func (l *mgLevel) restrict(w int) {
 			copy(out, row[first+1:last+2])
 			continue
 		}
-		for I := range out {
-			at := 2 * (first + I) // row index of fine cell 2I−1
-			t := row[at : at+4 : at+4]
-			out[I] = 0.25*(t[0]+t[3]) + 0.75*(t[1]+t[2])
-		}
+		gatherPairs(l.vector, row[2*first:], out) // row[2·first] is fine cell 2·first − 1
 	}
 }
 

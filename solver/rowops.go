@@ -30,3 +30,19 @@ func blend4(vector bool, w *[4]float32, rows *[4][]float32, dst []float32, add b
 		dst[i] = v
 	}
 }
+
+// gatherPairs sets out[I] = ¼·(row[2I] + row[2I+3]) + ¾·(row[2I+1] +
+// row[2I+2]): restriction's weights along a halved x, row holding the
+// fine cells from 2I − 1 on.
+func gatherPairs(vector bool, row, out []float32) {
+	n := len(out)
+	row = row[:2*n+2]
+	if vector && n > 0 {
+		restrictRowAVX(n, &row[0], &out[0])
+		return
+	}
+	for I := range out {
+		t := row[2*I : 2*I+4 : 2*I+4]
+		out[I] = 0.25*(t[0]+t[3]) + 0.75*(t[1]+t[2])
+	}
+}

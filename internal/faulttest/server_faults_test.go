@@ -102,7 +102,10 @@ func TestBrokerKilledAndRestartedLosesNothing(t *testing.T) {
 	t.Parallel()
 	const jobs = 30
 	f := newFarm(t, farmOptions{ackWait: 2 * time.Second, maxAttempts: 3})
-	ctx, cancel := context.WithTimeout(t.Context(), 120*time.Second)
+	// Generous bounds: the test once ran out of time while other heavy
+	// test packages shared the machine's two cores; they bound a hang,
+	// they are not a speed figure.
+	ctx, cancel := context.WithTimeout(t.Context(), 240*time.Second)
 	defer cancel()
 	var workers []*proc
 	for i := range 3 {
@@ -110,7 +113,7 @@ func TestBrokerKilledAndRestartedLosesNothing(t *testing.T) {
 	}
 	ids := f.submit(ctx, spheres("broker", jobs, 12, 900)...)
 	w := f.watch(ctx, ids)
-	if err := until(30*time.Second, func() bool { return w.finals.Load() >= 5 }); err != nil {
+	if err := until(90*time.Second, func() bool { return w.finals.Load() >= 5 }); err != nil {
 		t.Fatal("no jobs finished before the kill")
 	}
 	f.broker.kill()
@@ -120,7 +123,7 @@ func TestBrokerKilledAndRestartedLosesNothing(t *testing.T) {
 
 	// Everyone reconnects by themselves.
 	for _, p := range append([]*proc{f.sched}, workers...) {
-		p.waitLog(t, reconnectedLog, 30*time.Second)
+		p.waitLog(t, reconnectedLog, 60*time.Second)
 	}
 	w.waitFinals(t, ctx, jobs)
 	w.wait(t, ctx)

@@ -11,6 +11,7 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
+	"soakfarm/internal/pause"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -67,7 +68,7 @@ func (c *Client) Watch(ctx context.Context, jobID string, afterSeq uint64, fn fu
 		if failures > c.retry.MaxAttempts {
 			return fmt.Errorf("watch job %s: gave up after %d attempts, last event %d: %w", jobID, c.retry.MaxAttempts, last, err)
 		}
-		if err := sleep(ctx, c.retry.delay(failures)); err != nil {
+		if err := pause.For(ctx, c.retry.delay(failures)); err != nil {
 			return fmt.Errorf("watch job %s: %w", jobID, err)
 		}
 	}
@@ -138,15 +139,4 @@ func (p RetryPolicy) delay(n int) time.Duration {
 		return 0
 	}
 	return d + rand.N(d/5+1)
-}
-
-func sleep(ctx context.Context, d time.Duration) error {
-	t := time.NewTimer(d)
-	defer t.Stop()
-	select {
-	case <-ctx.Done():
-		return ctx.Err()
-	case <-t.C:
-		return nil
-	}
 }

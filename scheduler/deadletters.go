@@ -9,6 +9,7 @@ import (
 
 	"github.com/nats-io/nats.go/jetstream"
 
+	"soakfarm/internal/pause"
 	soakv1 "soakfarm/proto/soak/v1"
 	"soakfarm/scheduler/store"
 )
@@ -38,7 +39,7 @@ func (s *service) handleDeadLetters(ctx context.Context) {
 		if err != nil {
 			if ctx.Err() == nil && !errors.Is(err, jetstream.ErrNoMessages) {
 				s.log.Warn("dead letters: fetch", "err", err)
-				sleep(ctx, time.Second)
+				_ = pause.For(ctx, time.Second)
 			}
 			continue
 		}
@@ -94,14 +95,4 @@ func (s *service) endExhaustedJob(ctx context.Context, data []byte) error {
 		s.log.Warn("job failed: deliveries used up", "job", id, "reason", job.GetFailureReason())
 	}
 	return s.store.DeleteQueueMessage(ctx, adv.StreamSeq)
-}
-
-// sleep waits d or until ctx ends.
-func sleep(ctx context.Context, d time.Duration) {
-	t := time.NewTimer(d)
-	defer t.Stop()
-	select {
-	case <-ctx.Done():
-	case <-t.C:
-	}
 }

@@ -22,6 +22,7 @@ import (
 	"github.com/nats-io/nats.go"
 	"github.com/nats-io/nats.go/jetstream"
 
+	"soakfarm/internal/pause"
 	"soakfarm/pipeline"
 	soakv1 "soakfarm/proto/soak/v1"
 	"soakfarm/scheduler/store"
@@ -167,7 +168,7 @@ func (w *Worker) Run(ctx context.Context) error {
 			}
 			if !errors.Is(err, nats.ErrTimeout) && !errors.Is(err, context.DeadlineExceeded) {
 				w.log.Warn("fetch", "err", err)
-				sleep(ctx, time.Second)
+				_ = pause.For(ctx, time.Second)
 			}
 			continue
 		}
@@ -198,7 +199,7 @@ func (w *Worker) bind(ctx context.Context) (*store.Store, jetstream.Consumer, er
 			w.log.Info("waiting for a scheduler to set up the queue", "err", err)
 			logged = true
 		}
-		if sleep(ctx, time.Second) != nil {
+		if pause.For(ctx, time.Second) != nil {
 			return nil, nil, ctx.Err()
 		}
 	}
@@ -234,17 +235,5 @@ func (w *Worker) cancel(id string, cause error) {
 	w.mu.Unlock()
 	if run != nil {
 		run.cancel(cause)
-	}
-}
-
-// sleep waits d or until ctx ends, returning ctx's error in that case.
-func sleep(ctx context.Context, d time.Duration) error {
-	t := time.NewTimer(d)
-	defer t.Stop()
-	select {
-	case <-ctx.Done():
-		return ctx.Err()
-	case <-t.C:
-		return nil
 	}
 }

@@ -4,12 +4,15 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"slices"
 	"strings"
+	"time"
 
 	"github.com/nats-io/nats.go/jetstream"
 	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/types/known/timestamppb"
 
+	"soakfarm/internal/pause"
 	soakv1 "soakfarm/proto/soak/v1"
 )
 
@@ -45,14 +48,24 @@ func IsFinalEvent(ev *soakv1.JobEvent) bool {
 // stream sequence it saw on the job's subject and is refused if another
 // came first, and then retried. ErrJobEnded when the log already ends with
 // a final event.
+//
+// A call that gets no answer (the broker restarting, say) is asked again
+// until ctx ends. A publish may have been stored even so, its answer lost:
+// each carries a message ID, and finding its own ID on the last event of
+// the log tells the appender that it is done, so that the event is not
+// stored twice.
 func (s *Store) AppendEvent(ctx context.Context, id string, ev *soakv1.JobEvent) (*soakv1.JobEvent, error) {
 	subject := eventsSubject(id)
 	if ev.GetTime() == nil {
 		ev.Time = timestamppb.Now()
 	}
+	nonce := NewJobID(time.Now()) // sortable and random: unique per call
+	var unanswered []string       // IDs of publishes that may have been stored
 	for {
 		var lastSequence, lastStreamSeq uint64
-		raw, err := s.events.GetLastMsgForSubject(ctx, subject)
+		raw, err := answered(ctx, func(ctx context.Context) (*jetstream.RawStreamMsg, error) {
+			return s.events.GetLastMsgForSubject(ctx, subject)
+		})
 		switch {
 		case errors.Is(err, jetstream.ErrMsgNotFound):
 		case err != nil:
@@ -61,6 +74,9 @@ func (s *Store) AppendEvent(ctx context.Context, id string, ev *soakv1.JobEvent)
 			last := &soakv1.JobEvent{}
 			if err := proto.Unmarshal(raw.Data, last); err != nil {
 				return nil, fmt.Errorf("decode event of job %s: %w", id, err)
+			}
+			if slices.Contains(unanswered, raw.Header.Get(jetstream.MsgIDHeader)) {
+				return last, nil // an unanswered publish was stored after all
 			}
 			if IsFinalEvent(last) {
 				return nil, fmt.Errorf("event for job %s: %w", id, ErrJobEnded)
@@ -72,15 +88,46 @@ func (s *Store) AppendEvent(ctx context.Context, id string, ev *soakv1.JobEvent)
 		if err != nil {
 			return nil, fmt.Errorf("encode event of job %s: %w", id, err)
 		}
-		_, err = s.js.Publish(ctx, subject, data, jetstream.WithExpectLastSequencePerSubject(lastStreamSeq))
-		if err == nil {
+		msgID := fmt.Sprintf("%s.%d.%s", id, ev.Sequence, nonce)
+		actx, cancel := context.WithTimeout(ctx, publishAnswerWait)
+		_, err = s.js.Publish(actx, subject, data, jetstream.WithMsgID(msgID), jetstream.WithExpectLastSequencePerSubject(lastStreamSeq))
+		cancel()
+		var apiErr *jetstream.APIError
+		switch {
+		case err == nil:
 			return ev, nil
-		}
-		if !isWrongLastSequence(err) {
+		case isWrongLastSequence(err):
+		case errors.As(err, &apiErr) || ctx.Err() != nil:
 			return nil, fmt.Errorf("append event of job %s: %w", id, err)
+		default: // no answer: ask again once the connection may be back
+			unanswered = append(unanswered, msgID)
+			if err := pause.For(ctx, publishRetryWait); err != nil {
+				return nil, fmt.Errorf("append event of job %s: %w", id, err)
+			}
 		}
-		if err := ctx.Err(); err != nil {
-			return nil, err
+	}
+}
+
+// publishAnswerWait is how long one request to the broker waits for its
+// answer before it is asked again; publishRetryWait the pause between.
+const (
+	publishAnswerWait = 2 * time.Second
+	publishRetryWait  = 250 * time.Millisecond
+)
+
+// answered calls get, each call bounded by publishAnswerWait, until it
+// answers (a result or a server's error) or ctx ends.
+func answered[T any](ctx context.Context, get func(context.Context) (T, error)) (T, error) {
+	for {
+		actx, cancel := context.WithTimeout(ctx, publishAnswerWait)
+		v, err := get(actx)
+		cancel()
+		var apiErr *jetstream.APIError
+		if err == nil || errors.As(err, &apiErr) || errors.Is(err, jetstream.ErrMsgNotFound) || ctx.Err() != nil {
+			return v, err
+		}
+		if err := pause.For(ctx, publishRetryWait); err != nil {
+			return v, err
 		}
 	}
 }

@@ -102,9 +102,8 @@ func TestBrokerKilledAndRestartedLosesNothing(t *testing.T) {
 	t.Parallel()
 	const jobs = 30
 	f := newFarm(t, farmOptions{ackWait: 2 * time.Second, maxAttempts: 3})
-	// Generous bounds: the test once ran out of time while other heavy
-	// test packages shared the machine's two cores; they bound a hang,
-	// they are not a speed figure.
+	// Generous bounds: they catch a hang on a machine that other test
+	// packages load, they are not a speed figure.
 	ctx, cancel := context.WithTimeout(t.Context(), 240*time.Second)
 	defer cancel()
 	var workers []*proc

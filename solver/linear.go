@@ -51,6 +51,9 @@ func partIndex(spans []span, c int) int {
 type stencil struct {
 	diag       []float64
 	gx, gy, gz []float32
+	// conductancesSet counts the times gx, gy and gz were set, so that
+	// what depends on them alone is redone only when they change.
+	conductancesSet int
 	// vector tells the passes over this operator and its multigrid to use
 	// the AVX2 kernels where the CPU has them.
 	vector bool

@@ -31,14 +31,14 @@ type multigridCG struct {
 	fromStencilTask, loadTask, startTask, productTask, updateTask, dotTask, directionTask func(int)
 }
 
-func newMultigridCG(ws *workers, slabs [][]span, lay *layout, a *stencil, dims [3]int, part func(c int) bool, mem *arrays) *multigridCG {
+func newMultigridCG(ws *workers, slabs [][]span, lay *layout, a *stencil, dims [3]int, part func(c int) bool, mem *arrays, weighted bool) *multigridCG {
 	mask := make([]bool, dims[0]*dims[1]*dims[2])
 	for c := range mask {
 		mask[c] = part(c)
 	}
 	cells := partCells(slabs)
 	s := &multigridCG{
-		ws: ws, slabs: slabs, mg: newMultigrid(ws, a, dims, mask, slabs, lay, mem), cells: cells,
+		ws: ws, slabs: slabs, mg: newMultigrid(ws, a, dims, mask, slabs, lay, mem, weighted), cells: cells,
 		r: grow[float64](mem, cells), p: grow[float64](mem, lay.size), q: grow[float64](mem, cells),
 		sums: make([]partial, ws.count()),
 	}

@@ -20,7 +20,8 @@ import (
 // Interpolation is trilinear between cell centres (weights 3/4 and 1/4 per
 // halved direction), renormalised over the coarse cells that lie in the
 // part, so that a constant stays a constant at the surface; restriction is
-// its transpose. The smoother is a Chebyshev polynomial in D⁻¹A, the same
+// its transpose. On parts of several materials or with contact resistances
+// the weights follow the conductances near interfaces (transfer.go). The smoother is a Chebyshev polynomial in D⁻¹A, the same
 // before and after the coarse correction, and the coarsest level is solved
 // exactly by a dense Cholesky factor: the cycle is a fixed symmetric
 // positive definite operator, fit for conjugate gradients.
@@ -78,6 +79,15 @@ type mgLevel struct {
 	// coarsenSums (per slab of the next level) are coarsen's float64 sums
 	// over a coarse span: own terms and the three conductances.
 	coarsenSums [][4][]float64
+	// weighted makes prolongation and restriction follow the conductances
+	// (transfer.go): side holds each part cell's side weights along x, y
+	// and z, rowWeighted marks the grid rows (y + ny·z) where one differs
+	// from the trilinear 1/4, rowSpans lists each row's spans.
+	weighted    bool
+	side        [3][]uint8
+	rowWeighted []bool
+	rowSpans    [][]span
+	sidesTask   func(int)
 	// inv, b and scale hold the part cells only (span.at): no neighbour
 	// reads them. The others are in the level's layout (span.cp).
 
@@ -141,6 +151,11 @@ type multigrid struct {
 	coarseCells []int
 	chol, work  []float64
 	moved       float64 // bytes moved so far, by the traffic model below
+	// weighted: the transfers follow the conductances, so the side
+	// weights and the interpolation's scale are found again whenever the
+	// conductances change (sidesFor is the stencil's count they are for).
+	weighted bool
+	sidesFor int
 	// passByPass runs every wavefront stage as a pass of its own over
 	// the level, each moving its operands from memory: the in-run
 	// reference `soak bench` holds the fused sweeps against. The result
@@ -154,9 +169,9 @@ type multigrid struct {
 // newMultigrid builds the hierarchy over the finest level, whose part
 // cells part tells (by grid index) and which shares the solver's spans,
 // layout and conductances (a).
-func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]span, lay *layout, mem *arrays) *multigrid {
+func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]span, lay *layout, mem *arrays, weighted bool) *multigrid {
 	vector := a.vector
-	mg := &multigrid{ws: ws}
+	mg := &multigrid{ws: ws, weighted: weighted}
 	threads := ws.count()
 	l := newLevel(dims, slabs, lay, a, mem, vector)
 	mg.levels = append(mg.levels, l)
@@ -194,6 +209,15 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]s
 			}
 			l.coarsenSums = append(l.coarsenSums, sums)
 		}
+		if weighted {
+			l.weighted = true
+			l.indexRows()
+			for a := range l.side {
+				l.side[a] = make([]uint8, l.cells)
+			}
+			l.rowWeighted = make([]bool, l.n[1]*l.n[2])
+			l.sidesTask = l.setSides
+		}
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
 		l, part = c, coarse
@@ -212,8 +236,14 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]s
 
 // interpolationScale sets l.scale from the interpolation of a coarse field
 // that is 1 in the part: the sum of the weights each fine cell receives.
+// It leaves l.x and the next level's x at 0.
 func (mg *multigrid) interpolationScale(l *mgLevel) {
 	c := l.next
+	for _, slab := range l.slabs {
+		for _, sp := range slab {
+			clear(l.x[sp.cp : sp.cp+sp.hi-sp.lo])
+		}
+	}
 	for _, slab := range c.slabs {
 		for _, sp := range slab {
 			for i := sp.cp; i < sp.cp+sp.hi-sp.lo; i++ {
@@ -255,7 +285,7 @@ func (mg *multigrid) memory() int {
 		if l.ownsConductances {
 			layoutArrays += 3
 		}
-		bytes += 4 * (layoutArrays*len(l.x) + len(l.inv) + len(l.b) + len(l.scale))
+		bytes += 4*(layoutArrays*len(l.x)+len(l.inv)+len(l.b)+len(l.scale)) + 3*len(l.side[0])
 	}
 	return bytes
 }
@@ -288,6 +318,13 @@ func (mg *multigrid) setup(a *stencil, fromFine func(int)) {
 		mg.run(c, c.diagonalTask)
 		mg.moved += (bytesCoarsen + bytesDiagonal/8) * float64(l.cells)
 		mg.setSmoother(c)
+	}
+	if mg.weighted && mg.sidesFor != a.conductancesSet {
+		mg.sidesFor = a.conductancesSet
+		for _, l := range mg.levels[:len(mg.levels)-1] {
+			mg.run(l, l.sidesTask)
+			mg.interpolationScale(l)
+		}
 	}
 	mg.factorCoarsest()
 }
@@ -485,7 +522,11 @@ func (l *mgLevel) prolong(w int, spans []span) {
 	f := l.factor
 	x, scale, cx := l.x, l.scale, c.x
 	row := l.coarseRow[w] // row[I+1] is coarse cell I; row[0] and the end stay 0
-	for _, sp := range spans {
+	for i, sp := range spans {
+		if l.weighted && l.rowWeighted[sp.y+l.n[1]*sp.z] {
+			l.prolongWeighted(&spans[i])
+			continue
+		}
 		y0, y1, wy0, wy1 := interpolation(sp.y, f[1], c.n[1])
 		z0, z1, wz0, wz1 := interpolation(sp.z, f[2], c.n[2])
 		// The coarse rows keep every cell read here: the parents' row holds
@@ -567,7 +608,11 @@ func (l *mgLevel) restrict(w int) {
 	f := l.factor
 	d := l.d
 	row := l.fineRow[w] // row[i+1] is fine cell i; row[0] and the end stay 0
-	for _, sp := range c.slabs[w] {
+	for i, sp := range c.slabs[w] {
+		if l.weighted && l.drawsOnWeighted(&sp) {
+			l.restrictWeighted(&c.slabs[w][i])
+			continue
+		}
 		ys, wys, ny := restriction(sp.y, f[1], l.n[1])
 		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
 		first, last := sp.x, sp.x+sp.hi-sp.lo-1

@@ -239,7 +239,7 @@ func newRunOn(p *Problem, vector bool) *run {
 	if p.Stepping.Preconditioner == Jacobi {
 		r.lin = newJacobiCG(r.ws, r.slabs, lay.size, mem)
 	} else {
-		r.lin = newMultigridCG(r.ws, r.slabs, lay, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, mem)
+		r.lin = newMultigridCG(r.ws, r.slabs, lay, &r.st, g.N, func(c int) bool { return g.Region[c] != 0 }, mem, conductivityJumps(p))
 	}
 	r.kTask = r.conductivities
 	r.conductanceTask = r.faceConductances
@@ -561,6 +561,7 @@ func (r *run) step(ctx context.Context, t, h, dtPrev float64, coef bdf) (iterati
 				r.ws.run(r.kTask)
 			}
 			r.ws.run(r.conductanceTask)
+			r.st.conductancesSet++
 			r.conductancesSet = r.constantK
 		}
 		r.ws.run(r.fillTask)
@@ -758,4 +759,21 @@ func (r *run) largestChange() float64 {
 		r.acc[w] = partial{a: change}
 	})
 	return r.maxAcc()
+}
+
+// conductivityJumps tells whether p's part may hold faces across which
+// the conductivity changes sharply: a contact resistance, or materials
+// whose conductivities differ more than twofold somewhere in their
+// ranges. The multigrid transfers then follow the conductances.
+func conductivityJumps(p *Problem) bool {
+	if len(p.Contacts) > 0 {
+		return true
+	}
+	lo, hi := math.Inf(1), 0.0
+	for _, m := range p.Materials {
+		for _, k := range m.Conductivity.V {
+			lo, hi = min(lo, k), max(hi, k)
+		}
+	}
+	return len(p.Materials) > 1 && hi > 2*lo
 }

@@ -31,11 +31,11 @@ func (j *lostAnswers) Publish(ctx context.Context, subject string, data []byte, 
 	return ack, err
 }
 
-// TestAppendEventStoresOnceWhenAnswersAreLost: an event whose publish was
-// stored but whose answer never came is found by its message ID and not
-// stored again.
-func TestAppendEventStoresOnceWhenAnswersAreLost(t *testing.T) {
-	t.Parallel()
+// EmbeddedNATS starts an in-process NATS server with JetStream in a
+// temporary folder, stopped when the test ends; the store's external tests
+// use it too.
+func EmbeddedNATS(t *testing.T) *server.Server {
+	t.Helper()
 	ns, err := server.NewServer(&server.Options{JetStream: true, StoreDir: t.TempDir(), DontListen: true, NoSigs: true, NoLog: true})
 	if err != nil {
 		t.Fatal(err)
@@ -44,7 +44,16 @@ func TestAppendEventStoresOnceWhenAnswersAreLost(t *testing.T) {
 	if !ns.ReadyForConnections(10 * time.Second) {
 		t.Fatal("NATS not ready")
 	}
-	defer func() { ns.Shutdown(); ns.WaitForShutdown() }()
+	t.Cleanup(func() { ns.Shutdown(); ns.WaitForShutdown() })
+	return ns
+}
+
+// TestAppendEventStoresOnceWhenAnswersAreLost: an event whose publish was
+// stored but whose answer never came is found by its message ID and not
+// stored again.
+func TestAppendEventStoresOnceWhenAnswersAreLost(t *testing.T) {
+	t.Parallel()
+	ns := EmbeddedNATS(t)
 	nc, err := nats.Connect("", nats.InProcessServer(ns))
 	if err != nil {
 		t.Fatal(err)

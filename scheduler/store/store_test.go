@@ -8,7 +8,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/nats-io/nats-server/v2/server"
 	"github.com/nats-io/nats.go"
 
 	soakv1 "soakfarm/proto/soak/v1"
@@ -48,15 +47,7 @@ func TestValidJobIDRejectsOtherStrings(t *testing.T) {
 
 func TestConcurrentAppendsNumberEventsDensely(t *testing.T) {
 	t.Parallel()
-	ns, err := server.NewServer(&server.Options{JetStream: true, StoreDir: t.TempDir(), DontListen: true, NoSigs: true, NoLog: true})
-	if err != nil {
-		t.Fatal(err)
-	}
-	go ns.Start()
-	if !ns.ReadyForConnections(10 * time.Second) {
-		t.Fatal("NATS not ready")
-	}
-	defer func() { ns.Shutdown(); ns.WaitForShutdown() }()
+	ns := store.EmbeddedNATS(t)
 	// Appenders on separate connections, as scheduler and worker are.
 	const appenders, each = 4, 10
 	stores := make([]*store.Store, appenders)
@@ -91,7 +82,7 @@ func TestConcurrentAppendsNumberEventsDensely(t *testing.T) {
 	}
 	var got []uint64
 	names := map[string]bool{}
-	err = stores[1].FollowEvents(t.Context(), id, func(ev *soakv1.JobEvent) error {
+	err := stores[1].FollowEvents(t.Context(), id, func(ev *soakv1.JobEvent) error {
 		got = append(got, ev.GetSequence())
 		names[ev.GetMilestone().GetName()] = true
 		if store.IsFinalEvent(ev) {

@@ -21,10 +21,11 @@ import (
 // halved direction), renormalised over the coarse cells that lie in the
 // part, so that a constant stays a constant at the surface; restriction is
 // its transpose. On parts of several materials or with contact resistances
-// the weights follow the conductances near interfaces (transfer.go). The smoother is a Chebyshev polynomial in D⁻¹A, the same
-// before and after the coarse correction, and the coarsest level is solved
-// exactly by a dense Cholesky factor: the cycle is a fixed symmetric
-// positive definite operator, fit for conjugate gradients.
+// the weights follow the conductances near interfaces (transfer.go). The
+// smoother is a Chebyshev polynomial in D⁻¹A, the same before and after
+// the coarse correction, and the coarsest level is solved exactly by a
+// dense Cholesky factor: the cycle is a fixed symmetric positive definite
+// operator, fit for conjugate gradients.
 //
 // The levels hold float32: the preconditioner only has to be a good
 // approximate inverse, and half the bytes is half the memory traffic. The

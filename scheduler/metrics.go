@@ -13,12 +13,14 @@ import (
 )
 
 // metrics are the scheduler's Prometheus series. The counts of jobs by
-// state and the queue depth are read from JetStream at each scrape, so
-// every scheduler of a farm reports the same farm-wide numbers.
+// state (kept from a watch of the job records) and the queue depth (read
+// at each scrape) come from JetStream, so every scheduler of a farm
+// reports the same farm-wide numbers.
 type metrics struct {
 	submitted     prometheus.Counter
 	givenUp       prometheus.Counter
 	natsConnected prometheus.Gauge
+	states        *stateCounts
 }
 
 func newMetrics() *metrics {
@@ -32,6 +34,7 @@ func newMetrics() *metrics {
 		natsConnected: prometheus.NewGauge(prometheus.GaugeOpts{
 			Name: "soak_scheduler_nats_connected", Help: "1 while the scheduler's NATS connection is up, else 0.",
 		}),
+		states: newStateCounts(),
 	}
 }
 
@@ -40,7 +43,7 @@ func (m *metrics) register(reg prometheus.Registerer, st *store.Store, nc *nats.
 		reg.Register(m.submitted),
 		reg.Register(m.givenUp),
 		reg.Register(m.natsConnected),
-		reg.Register(&farmCollector{store: st, nc: nc}),
+		reg.Register(&farmCollector{store: st, nc: nc, states: m.states}),
 	)
 }
 
@@ -55,10 +58,13 @@ var (
 	inHandDesc     = prometheus.NewDesc("soak_queue_in_hand", "Jobs handed to workers and not yet acknowledged.", nil, nil)
 )
 
-// farmCollector reads the farm-wide series at scrape time.
+// farmCollector reads the farm-wide series at scrape time: the queue from
+// its consumer, the jobs by state from the watch of the records (from the
+// records themselves until the watch has caught up).
 type farmCollector struct {
-	store *store.Store
-	nc    *nats.Conn
+	store  *store.Store
+	nc     *nats.Conn
+	states *stateCounts
 }
 
 func (c *farmCollector) Describe(ch chan<- *prometheus.Desc) {
@@ -79,9 +85,12 @@ func (c *farmCollector) Collect(ch chan<- prometheus.Metric) {
 			ch <- prometheus.MustNewConstMetric(inHandDesc, prometheus.GaugeValue, float64(info.NumAckPending))
 		}
 	}
-	counts, err := c.store.CountByState(ctx)
-	if err != nil {
-		return
+	counts, ok := c.states.snapshot(ctx, c.store)
+	if !ok {
+		var err error
+		if counts, err = c.store.CountByState(ctx); err != nil {
+			return
+		}
 	}
 	for st := soakv1.JobState_JOB_STATE_QUEUED; st <= soakv1.JobState_JOB_STATE_CANCELLED; st++ {
 		ch <- prometheus.MustNewConstMetric(jobsDesc, prometheus.GaugeValue, float64(counts[st]), store.StateWord(st))

@@ -134,6 +134,9 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 	s.setHealth(nc.IsConnected())
 	s.bg.Go(func() { s.followNATS(life, nc, statuses) })
 	s.bg.Go(func() { svc.handleDeadLetters(life) })
+	if cfg.Metrics != nil {
+		s.bg.Go(func() { svc.metrics.states.follow(life, st, cfg.Logger) })
+	}
 	s.bg.Go(func() {
 		if _, err := svc.requeueStranded(life); err != nil && life.Err() == nil {
 			cfg.Logger.Error("looking for stranded jobs", "err", err)

@@ -307,7 +307,56 @@ func (s *Store) JobIDs(ctx context.Context) ([]string, error) {
 	return ids, nil
 }
 
-// CountByState counts the jobs in each state.
+// WatchJobStates calls seen with the state of every job record as it
+// stands, then caughtUp once, then seen again at every change, until ctx
+// ends or the watch fails. A deleted or purged record comes with deleted
+// set. revision is the change's sequence, as JobsRevision counts.
+func (s *Store) WatchJobStates(ctx context.Context, seen func(id string, state soakv1.JobState, revision uint64, deleted bool), caughtUp func()) error {
+	w, err := s.jobs.WatchAll(ctx)
+	if err != nil {
+		return fmt.Errorf("watch jobs: %w", err)
+	}
+	defer w.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return ctx.Err()
+		case e, ok := <-w.Updates():
+			switch {
+			case !ok:
+				return errors.New("watch jobs: the watch ended")
+			case e == nil:
+				caughtUp()
+			case e.Operation() == jetstream.KeyValueDelete || e.Operation() == jetstream.KeyValuePurge:
+				seen(e.Key(), soakv1.JobState_JOB_STATE_UNSPECIFIED, e.Revision(), true)
+			default:
+				job := &soakv1.Job{}
+				if err := proto.Unmarshal(e.Value(), job); err != nil {
+					return fmt.Errorf("decode job %s: %w", e.Key(), err)
+				}
+				seen(e.Key(), job.GetState(), e.Revision(), false)
+			}
+		}
+	}
+}
+
+// JobsRevision returns the sequence of the latest change to any job
+// record, 0 before the first.
+func (s *Store) JobsRevision(ctx context.Context) (uint64, error) {
+	st, err := s.js.Stream(ctx, "KV_"+JobsBucket)
+	if err != nil {
+		return 0, fmt.Errorf("job records: %w", err)
+	}
+	info, err := st.Info(ctx)
+	if err != nil {
+		return 0, fmt.Errorf("job records: %w", err)
+	}
+	return info.State.LastSeq, nil
+}
+
+// CountByState counts the jobs in each state by reading every record: the
+// scheduler's metrics use it until their watch (WatchJobStates) has
+// caught up.
 func (s *Store) CountByState(ctx context.Context) (map[soakv1.JobState]int, error) {
 	ids, err := s.JobIDs(ctx)
 	if err != nil {

@@ -1,6 +1,7 @@
 package store_test
 
 import (
+	"context"
 	"fmt"
 	"slices"
 	"strings"
@@ -104,3 +105,64 @@ func TestConcurrentAppendsNumberEventsDensely(t *testing.T) {
 }
 
 var errStop = fmt.Errorf("stop")
+
+// TestWatchJobStatesReachesTheLatestRevision: a watch of the job records
+// reports those there are, then each change and deletion with the
+// revision that JobsRevision reports after it.
+func TestWatchJobStatesReachesTheLatestRevision(t *testing.T) {
+	t.Parallel()
+	ns := store.EmbeddedNATS(t)
+	nc, err := nats.Connect("", nats.InProcessServer(ns))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer nc.Close()
+	st, err := store.Setup(t.Context(), nc, store.DefaultSettings())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rev, err := st.JobsRevision(t.Context()); rev != 0 || err != nil {
+		t.Fatalf("empty bucket at revision %d (%v)", rev, err)
+	}
+	first := store.NewJobID(time.Now())
+	if err := st.CreateJob(t.Context(), &soakv1.Job{Id: first, State: soakv1.JobState_JOB_STATE_QUEUED}); err != nil {
+		t.Fatal(err)
+	}
+	type change struct {
+		id      string
+		state   soakv1.JobState
+		rev     uint64
+		deleted bool
+	}
+	changes, caughtUp := make(chan change, 10), make(chan struct{}, 1)
+	ctx, cancel := context.WithCancel(t.Context())
+	defer cancel()
+	go st.WatchJobStates(ctx, func(id string, s soakv1.JobState, rev uint64, deleted bool) {
+		changes <- change{id, s, rev, deleted}
+	}, func() { caughtUp <- struct{}{} })
+	next := func(want change) {
+		t.Helper()
+		select {
+		case got := <-changes:
+			latest, err := st.JobsRevision(t.Context())
+			if got != want || err != nil || got.rev != latest {
+				t.Fatalf("watch saw %+v, want %+v at the latest revision %d (%v)", got, want, latest, err)
+			}
+		case <-time.After(10 * time.Second):
+			t.Fatalf("watch never saw %+v", want)
+		}
+	}
+	next(change{first, soakv1.JobState_JOB_STATE_QUEUED, 1, false})
+	<-caughtUp
+	if _, err := st.UpdateJob(t.Context(), first, func(j *soakv1.Job) error {
+		j.State = soakv1.JobState_JOB_STATE_RUNNING
+		return nil
+	}); err != nil {
+		t.Fatal(err)
+	}
+	next(change{first, soakv1.JobState_JOB_STATE_RUNNING, 2, false})
+	if err := st.DeleteJob(t.Context(), first); err != nil {
+		t.Fatal(err)
+	}
+	next(change{first, soakv1.JobState_JOB_STATE_UNSPECIFIED, 3, true})
+}

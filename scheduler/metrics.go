@@ -20,7 +20,6 @@ type metrics struct {
 	submitted     prometheus.Counter
 	givenUp       prometheus.Counter
 	natsConnected prometheus.Gauge
-	states        *stateCounts
 }
 
 func newMetrics() *metrics {
@@ -34,16 +33,15 @@ func newMetrics() *metrics {
 		natsConnected: prometheus.NewGauge(prometheus.GaugeOpts{
 			Name: "soak_scheduler_nats_connected", Help: "1 while the scheduler's NATS connection is up, else 0.",
 		}),
-		states: newStateCounts(),
 	}
 }
 
-func (m *metrics) register(reg prometheus.Registerer, st *store.Store, nc *nats.Conn) error {
+func (m *metrics) register(reg prometheus.Registerer, st *store.Store, nc *nats.Conn, index *jobIndex) error {
 	return errors.Join(
 		reg.Register(m.submitted),
 		reg.Register(m.givenUp),
 		reg.Register(m.natsConnected),
-		reg.Register(&farmCollector{store: st, nc: nc, states: m.states}),
+		reg.Register(&farmCollector{store: st, nc: nc, index: index}),
 	)
 }
 
@@ -62,9 +60,9 @@ var (
 // its consumer, the jobs by state from the watch of the records (from the
 // records themselves until the watch has caught up).
 type farmCollector struct {
-	store  *store.Store
-	nc     *nats.Conn
-	states *stateCounts
+	store *store.Store
+	nc    *nats.Conn
+	index *jobIndex
 }
 
 func (c *farmCollector) Describe(ch chan<- *prometheus.Desc) {
@@ -85,7 +83,7 @@ func (c *farmCollector) Collect(ch chan<- prometheus.Metric) {
 			ch <- prometheus.MustNewConstMetric(inHandDesc, prometheus.GaugeValue, float64(info.NumAckPending))
 		}
 	}
-	counts, ok := c.states.snapshot(ctx, c.store)
+	counts, ok := c.index.stateCounts(ctx, c.store)
 	if !ok {
 		var err error
 		if counts, err = c.store.CountByState(ctx); err != nil {

@@ -95,9 +95,9 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 		return nil, fmt.Errorf("scheduler: %w", err)
 	}
 	life, closing := context.WithCancel(context.Background())
-	svc := &service{store: st, log: cfg.Logger, life: life, limits: cfg.Limits, metrics: newMetrics()}
+	svc := &service{store: st, log: cfg.Logger, life: life, limits: cfg.Limits, metrics: newMetrics(), index: newJobIndex()}
 	if cfg.Metrics != nil {
-		if err := svc.metrics.register(cfg.Metrics, st, nc); err != nil {
+		if err := svc.metrics.register(cfg.Metrics, st, nc, svc.index); err != nil {
 			closing()
 			return nil, fmt.Errorf("scheduler: metrics: %w", err)
 		}
@@ -134,9 +134,7 @@ func Start(ctx context.Context, nc *nats.Conn, lis net.Listener, cfg Config) (*S
 	s.setHealth(nc.IsConnected())
 	s.bg.Go(func() { s.followNATS(life, nc, statuses) })
 	s.bg.Go(func() { svc.handleDeadLetters(life) })
-	if cfg.Metrics != nil {
-		s.bg.Go(func() { svc.metrics.states.follow(life, st, cfg.Logger) })
-	}
+	s.bg.Go(func() { svc.index.follow(life, st, cfg.Logger) })
 	s.bg.Go(func() {
 		if _, err := svc.requeueStranded(life); err != nil && life.Err() == nil {
 			cfg.Logger.Error("looking for stranded jobs", "err", err)

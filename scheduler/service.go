@@ -42,6 +42,8 @@ type service struct {
 	life    context.Context
 	limits  Limits
 	metrics *metrics
+	// index keeps each job's state and owner from a watch of the records.
+	index *jobIndex
 }
 
 // errWatchDone stops FollowEvents after the final event.
@@ -325,9 +327,17 @@ func (s *service) ListJobs(ctx context.Context, req *soakv1.ListJobsRequest) (*s
 	for _, st := range req.GetStates() {
 		wanted[st] = true
 	}
-	ids, err := s.store.JobIDs(ctx)
-	if err != nil {
-		return nil, storeError(err)
+	// The index names the candidates; the records read below decide.
+	ids, ok := s.index.matching(ctx, s.store, func(state soakv1.JobState, owner string) bool {
+		return (len(wanted) == 0 || wanted[state]) && client.MayAccess(owner)
+	})
+	if ok {
+		store.SortNewestFirst(ids)
+	} else {
+		var err error
+		if ids, err = s.store.JobIDs(ctx); err != nil {
+			return nil, storeError(err)
+		}
 	}
 	resp := &soakv1.ListJobsResponse{}
 	for i, id := range ids {

@@ -53,8 +53,8 @@ func isIDChar(c byte) bool {
 	return (c >= '0' && c <= '9') || (c >= 'a' && c <= 'z' && c != 'i' && c != 'l' && c != 'o' && c != 'u')
 }
 
-// sortNewestFirst orders job ids by descending time.
-func sortNewestFirst(ids []string) {
+// SortNewestFirst orders job ids by descending time.
+func SortNewestFirst(ids []string) {
 	slices.SortFunc(ids, func(a, b string) int { return strings.Compare(b, a) })
 }
 

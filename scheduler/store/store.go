@@ -303,15 +303,15 @@ func (s *Store) JobIDs(ctx context.Context) ([]string, error) {
 	if err != nil {
 		return nil, fmt.Errorf("list jobs: %w", err)
 	}
-	sortNewestFirst(ids)
+	SortNewestFirst(ids)
 	return ids, nil
 }
 
-// WatchJobStates calls seen with the state of every job record as it
-// stands, then caughtUp once, then seen again at every change, until ctx
-// ends or the watch fails. A deleted or purged record comes with deleted
-// set. revision is the change's sequence, as JobsRevision counts.
-func (s *Store) WatchJobStates(ctx context.Context, seen func(id string, state soakv1.JobState, revision uint64, deleted bool), caughtUp func()) error {
+// WatchJobs calls seen with every job record as it stands, then caughtUp
+// once, then seen again at every change, until ctx ends or the watch
+// fails. A deleted or purged record comes as nil. revision is the change's
+// sequence, as JobsRevision counts.
+func (s *Store) WatchJobs(ctx context.Context, seen func(id string, job *soakv1.Job, revision uint64), caughtUp func()) error {
 	w, err := s.jobs.WatchAll(ctx)
 	if err != nil {
 		return fmt.Errorf("watch jobs: %w", err)
@@ -328,13 +328,13 @@ func (s *Store) WatchJobStates(ctx context.Context, seen func(id string, state s
 			case e == nil:
 				caughtUp()
 			case e.Operation() == jetstream.KeyValueDelete || e.Operation() == jetstream.KeyValuePurge:
-				seen(e.Key(), soakv1.JobState_JOB_STATE_UNSPECIFIED, e.Revision(), true)
+				seen(e.Key(), nil, e.Revision())
 			default:
 				job := &soakv1.Job{}
 				if err := proto.Unmarshal(e.Value(), job); err != nil {
 					return fmt.Errorf("decode job %s: %w", e.Key(), err)
 				}
-				seen(e.Key(), job.GetState(), e.Revision(), false)
+				seen(e.Key(), job, e.Revision())
 			}
 		}
 	}
@@ -355,8 +355,7 @@ func (s *Store) JobsRevision(ctx context.Context) (uint64, error) {
 }
 
 // CountByState counts the jobs in each state by reading every record: the
-// scheduler's metrics use it until their watch (WatchJobStates) has
-// caught up.
+// scheduler's metrics use it until their watch (WatchJobs) has caught up.
 func (s *Store) CountByState(ctx context.Context) (map[soakv1.JobState]int, error) {
 	ids, err := s.JobIDs(ctx)
 	if err != nil {

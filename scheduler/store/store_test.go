@@ -106,10 +106,10 @@ func TestConcurrentAppendsNumberEventsDensely(t *testing.T) {
 
 var errStop = fmt.Errorf("stop")
 
-// TestWatchJobStatesReachesTheLatestRevision: a watch of the job records
+// TestWatchJobsReachesTheLatestRevision: a watch of the job records
 // reports those there are, then each change and deletion with the
 // revision that JobsRevision reports after it.
-func TestWatchJobStatesReachesTheLatestRevision(t *testing.T) {
+func TestWatchJobsReachesTheLatestRevision(t *testing.T) {
 	t.Parallel()
 	ns := store.EmbeddedNATS(t)
 	nc, err := nats.Connect("", nats.InProcessServer(ns))
@@ -137,8 +137,8 @@ func TestWatchJobStatesReachesTheLatestRevision(t *testing.T) {
 	changes, caughtUp := make(chan change, 10), make(chan struct{}, 1)
 	ctx, cancel := context.WithCancel(t.Context())
 	defer cancel()
-	go st.WatchJobStates(ctx, func(id string, s soakv1.JobState, rev uint64, deleted bool) {
-		changes <- change{id, s, rev, deleted}
+	go st.WatchJobs(ctx, func(id string, job *soakv1.Job, rev uint64) {
+		changes <- change{id, job.GetState(), rev, job == nil}
 	}, func() { caughtUp <- struct{}{} })
 	next := func(want change) {
 		t.Helper()

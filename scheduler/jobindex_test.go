@@ -5,6 +5,7 @@ import (
 	"io"
 	"log/slog"
 	"maps"
+	"slices"
 	"sync"
 	"testing"
 	"time"
@@ -17,14 +18,14 @@ import (
 type fakeRecords struct {
 	mu       sync.Mutex
 	revision uint64
-	changes  chan func(seen func(string, soakv1.JobState, uint64, bool))
+	changes  chan func(seen func(string, *soakv1.Job, uint64))
 	initial  map[string]soakv1.JobState
 }
 
-func (f *fakeRecords) WatchJobStates(ctx context.Context, seen func(string, soakv1.JobState, uint64, bool), caughtUp func()) error {
+func (f *fakeRecords) WatchJobs(ctx context.Context, seen func(string, *soakv1.Job, uint64), caughtUp func()) error {
 	f.mu.Lock()
 	for id, st := range f.initial {
-		seen(id, st, f.revision, false)
+		seen(id, &soakv1.Job{Id: id, State: st, Owner: "o-" + id}, f.revision)
 	}
 	f.mu.Unlock()
 	caughtUp()
@@ -44,23 +45,28 @@ func (f *fakeRecords) JobsRevision(context.Context) (uint64, error) {
 	return f.revision, nil
 }
 
-// set records a change: the bucket's revision moves at once, the watch
-// hears of it when the test lets it (deliver).
-func (f *fakeRecords) set(id string, st soakv1.JobState, deleted bool) (deliver func()) {
+// set records a change (st 0: the record is deleted): the bucket's
+// revision moves at once, the watch hears of it when the test lets it
+// (deliver).
+func (f *fakeRecords) set(id string, st soakv1.JobState) (deliver func()) {
 	f.mu.Lock()
 	f.revision++
 	rev := f.revision
 	f.mu.Unlock()
+	var job *soakv1.Job
+	if st != 0 {
+		job = &soakv1.Job{Id: id, State: st, Owner: "o-" + id}
+	}
 	return func() {
-		f.changes <- func(seen func(string, soakv1.JobState, uint64, bool)) { seen(id, st, rev, deleted) }
+		f.changes <- func(seen func(string, *soakv1.Job, uint64)) { seen(id, job, rev) }
 	}
 }
 
-// TestStateCountsFollowTheRecords: the counts start from the records there
-// are, follow each change and deletion, and a snapshot waits for the watch
-// to reach the latest change rather than show an older count (or gives up
-// after countsCatchUpWait, for the records to be counted directly).
-func TestStateCountsFollowTheRecords(t *testing.T) {
+// TestJobIndexFollowsTheRecords: the index starts from the records there
+// are, follows each change and deletion, and a reader waits for the watch
+// to reach the latest change rather than see an older index (or gives up
+// after catchUpWait, for the records to be read directly).
+func TestJobIndexFollowsTheRecords(t *testing.T) {
 	t.Parallel()
 	const (
 		queued   = soakv1.JobState_JOB_STATE_QUEUED
@@ -68,15 +74,15 @@ func TestStateCountsFollowTheRecords(t *testing.T) {
 		finished = soakv1.JobState_JOB_STATE_FINISHED
 	)
 	f := &fakeRecords{revision: 2, initial: map[string]soakv1.JobState{"a": queued, "b": finished},
-		changes: make(chan func(func(string, soakv1.JobState, uint64, bool)))}
-	sc := newStateCounts()
+		changes: make(chan func(func(string, *soakv1.Job, uint64)))}
+	ix := newJobIndex()
 	ctx, cancel := context.WithCancel(t.Context())
 	defer cancel()
-	go sc.follow(ctx, f, slog.New(slog.NewTextHandler(io.Discard, nil)))
+	go ix.follow(ctx, f, slog.New(slog.NewTextHandler(io.Discard, nil)))
 
 	expect := func(want map[soakv1.JobState]int) {
 		t.Helper()
-		got, ok := sc.snapshot(t.Context(), f)
+		got, ok := ix.stateCounts(t.Context(), f)
 		for st, n := range got {
 			if n == 0 {
 				delete(got, st)
@@ -89,18 +95,24 @@ func TestStateCountsFollowTheRecords(t *testing.T) {
 	expect(map[soakv1.JobState]int{queued: 1, finished: 1})
 
 	// A change the watch has not yet delivered: the snapshot waits for it.
-	deliver := f.set("a", running, false)
+	deliver := f.set("a", running)
 	go func() { time.Sleep(50 * time.Millisecond); deliver() }()
 	expect(map[soakv1.JobState]int{running: 1, finished: 1})
 
-	f.set("c", queued, false)()
-	f.set("b", 0, true)()
+	f.set("c", queued)()
+	f.set("b", 0)()
 	expect(map[soakv1.JobState]int{running: 1, queued: 1})
+	ids, ok := ix.matching(t.Context(), f, func(st soakv1.JobState, owner string) bool {
+		return st == queued || owner == "o-a"
+	})
+	if slices.Sort(ids); !ok || !slices.Equal(ids, []string{"a", "c"}) {
+		t.Errorf("jobs queued or owned by o-a: %v (ok %v), want a and c", ids, ok)
+	}
 
 	// A change that never arrives: the snapshot gives up.
-	f.set("d", queued, false)
+	f.set("d", queued)
 	start := time.Now()
-	if got, ok := sc.snapshot(t.Context(), f); ok || time.Since(start) < countsCatchUpWait {
+	if got, ok := ix.stateCounts(t.Context(), f); ok || time.Since(start) < catchUpWait {
 		t.Errorf("snapshot %v, %v after %s with a change missing", got, ok, time.Since(start))
 	}
 }

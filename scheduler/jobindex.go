@@ -107,7 +107,7 @@ func (ix *jobIndex) current(ctx context.Context, st jobRecords, read func()) boo
 	return true
 }
 
-// counts returns the number of jobs in each state.
+// stateCounts returns the number of jobs in each state.
 func (ix *jobIndex) stateCounts(ctx context.Context, st jobRecords) (counts map[soakv1.JobState]int, ok bool) {
 	ok = ix.current(ctx, st, func() { counts = maps.Clone(ix.counts) })
 	return counts, ok

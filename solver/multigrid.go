@@ -495,22 +495,11 @@ func (l *mgLevel) residual(spans []span, src []float32) {
 }
 
 // interpolation gives, along one axis, the two coarse cells a fine cell at
-// index i interpolates from and their weights: its parent with 3/4 and the
-// parent's neighbour on the child's side with 1/4 when the axis is halved
-// and that neighbour exists.
+// index i interpolates from and their trilinear weights: its parent with
+// 3/4 and the parent's neighbour on the child's side with 1/4 when the
+// axis is halved and that neighbour exists.
 func interpolation(i, factor, coarseN int) (i0, i1 int, w0, w1 float32) {
-	if factor == 1 {
-		return i, i, 1, 0
-	}
-	i0 = i / 2
-	i1 = i0 - 1
-	if i%2 == 1 {
-		i1 = i0 + 1
-	}
-	if i1 < 0 || i1 >= coarseN {
-		return i0, i0, 0.75, 0
-	}
-	return i0, i1, 0.75, 0.25
+	return axisWeights(i, factor, coarseN, sideScale/4)
 }
 
 // prolong adds scale·P·(coarse x) to x on spans of the fine slab w. For each fine

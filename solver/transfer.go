@@ -127,27 +127,15 @@ func (l *mgLevel) prolongWeighted(sp *span) {
 	c := l.next
 	f := l.factor
 	cl, cx := c.lay, c.x
-	y0, y1 := sp.y>>(f[1]>>1), sp.y>>(f[1]>>1) // parents; the sides follow
-	if f[1] == 2 {
-		y1 = y0 - 1 + 2*(sp.y&1)
-	}
-	z0, z1 := sp.z>>(f[2]>>1), sp.z>>(f[2]>>1)
-	if f[2] == 2 {
-		z1 = z0 - 1 + 2*(sp.z&1)
-	}
-	// The coarse rows, as in prolong: each keeps the cells read here. A
-	// row beyond the box is never read (its weight is 0): the parents'
-	// row stands in.
+	// The coarse rows, as in prolong: each keeps the cells read here.
+	// Without a row beside (an end of the box) the parents' row stands in;
+	// its side weight is 0.
+	y0, y1, _, _ := interpolation(sp.y, f[1], c.n[1])
+	z0, z1, _, _ := interpolation(sp.z, f[2], c.n[2])
 	lo := max(0, sp.x/f[0]-1)
 	var base [2][2]int // coarse cell X of row (a, b) is at base + X
 	for a, y := range [2]int{y0, y1} {
 		for b, z := range [2]int{z0, z1} {
-			if y < 0 || y >= c.n[1] {
-				y = y0
-			}
-			if z < 0 || z >= c.n[2] {
-				z = z0
-			}
 			base[a][b] = cl.neighbour(cl.row(y, z), lo) - lo
 		}
 	}

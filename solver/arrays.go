@@ -19,9 +19,15 @@ func (s *arrays) offsetLines() int {
 	return (k * 37) % 64
 }
 
-// grow returns a zeroed array of n elements starting at the next offset.
+// slack is how many elements each array has past its end: the stencil
+// kernels finish a span with a whole vector of eight cells, reading (not
+// writing) up to seven past the span's last cell and its neighbours.
+const slack = 8
+
+// grow returns a zeroed array of n elements starting at the next offset,
+// with slack elements after it.
 func grow[T float32 | float64](s *arrays, n int) []T {
 	var zero T
 	shift := s.offsetLines() * 64 / int(unsafe.Sizeof(zero))
-	return make([]T, n+shift)[shift : shift+n : shift+n]
+	return make([]T, n+shift+slack)[shift : shift+n : shift+n]
 }

@@ -36,21 +36,6 @@
 	VMOVUPS (R10)(R15*4), Y6; \
 	VFMADD231PS (SI)(R15*4), Y6, Y0
 
-// SUM_NEIGHBOURS32S is SUM_NEIGHBOURS32 for one cell, in X0.
-#define SUM_NEIGHBOURS32S \
-	VMOVSS (DI)(AX*4), X1; \
-	VFMADD231SS 4(SI)(AX*4), X1, X0; \
-	VMOVSS -4(DI)(AX*4), X2; \
-	VFMADD231SS -4(SI)(AX*4), X2, X0; \
-	VMOVSS (R9)(AX*4), X3; \
-	VFMADD231SS (SI)(DX*4), X3, X0; \
-	VMOVSS (R9)(BX*4), X4; \
-	VFMADD231SS (SI)(BX*4), X4, X0; \
-	VMOVSS (R10)(AX*4), X5; \
-	VFMADD231SS (SI)(R8*4), X5, X0; \
-	VMOVSS (R10)(R15*4), X6; \
-	VFMADD231SS (SI)(R15*4), X6, X0
-
 // CHEBYSHEV8 is one Chebyshev step on eight cells from AX on: values,
 // stencil and right-hand side as SPAN_BEGIN places them, d at R13, the
 // new values at R14, cr and cd broadcast in Y14 and Y15.
@@ -66,18 +51,20 @@
 	VADDPS Y7, Y8, Y8; \
 	VMOVUPS Y8, (R14)(AX*4)
 
-// CHEBYSHEV1 is CHEBYSHEV8 for the one cell AX.
-#define CHEBYSHEV1 \
-	VMOVSS (R12)(AX*4), X0; \
-	SUM_NEIGHBOURS32S; \
-	VMOVSS (SI)(AX*4), X7; \
-	VMULSS (R11)(AX*4), X0, X0; \
-	VSUBSS X7, X0, X0; \
-	VMULSS (R13)(AX*4), X15, X8; \
-	VFMADD231SS X0, X14, X8; \
-	VMOVSS X8, (R13)(AX*4); \
-	VADDSS X7, X8, X8; \
-	VMOVSS X8, (R14)(AX*4)
+// CHEBYSHEV_TAIL is CHEBYSHEV8 for the cells AX … AX+7 that the mask
+// Y13 selects: it reads all eight (the arrays have slack past their end)
+// and writes only the selected ones.
+#define CHEBYSHEV_TAIL \
+	VMOVUPS (R12)(AX*4), Y0; \
+	SUM_NEIGHBOURS32; \
+	VMOVUPS (SI)(AX*4), Y7; \
+	VMULPS (R11)(AX*4), Y0, Y0; \
+	VSUBPS Y7, Y0, Y0; \
+	VMULPS (R13)(AX*4), Y15, Y8; \
+	VFMADD231PS Y0, Y14, Y8; \
+	VMASKMOVPS Y8, Y13, (R13)(AX*4); \
+	VADDPS Y7, Y8, Y8; \
+	VMASKMOVPS Y8, Y13, (R14)(AX*4)
 
 // RESIDUAL8 sets the scaled residual of eight cells from AX on: values,
 // stencil and right-hand side as SPAN_BEGIN places them, scale at R13,
@@ -91,15 +78,36 @@
 	VMULPS (R13)(AX*4), Y0, Y0; \
 	VMOVUPS Y0, (R14)(AX*4)
 
-// RESIDUAL1 is RESIDUAL8 for the one cell AX.
-#define RESIDUAL1 \
-	VMOVSS (R12)(AX*4), X0; \
-	SUM_NEIGHBOURS32S; \
-	VMOVSS (SI)(AX*4), X7; \
-	VDIVSS (R11)(AX*4), X7, X7; \
-	VSUBSS X7, X0, X0; \
-	VMULSS (R13)(AX*4), X0, X0; \
-	VMOVSS X0, (R14)(AX*4)
+// RESIDUAL_TAIL is RESIDUAL8 for the cells the mask Y13 selects, as
+// CHEBYSHEV_TAIL.
+#define RESIDUAL_TAIL \
+	VMOVUPS (R12)(AX*4), Y0; \
+	SUM_NEIGHBOURS32; \
+	VMOVUPS (SI)(AX*4), Y7; \
+	VDIVPS (R11)(AX*4), Y7, Y7; \
+	VSUBPS Y7, Y0, Y0; \
+	VMULPS (R13)(AX*4), Y0, Y0; \
+	VMASKMOVPS Y0, Y13, (R14)(AX*4)
+
+// TAIL_MASK sets Y13 to select the first n−AX lanes (the cells of the span
+// left after its whole vectors) and jumps to next when there are none.
+#define TAIL_MASK(next) \
+	MOVQ n-8(SP), CX; \
+	SUBQ AX, CX; \
+	JLE next; \
+	MOVQ CX, X13; \
+	VPBROADCASTD X13, Y13; \
+	VPCMPGTD laneIndex<>(SB), Y13, Y13
+
+DATA laneIndex<>+0(SB)/4, $0
+DATA laneIndex<>+4(SB)/4, $1
+DATA laneIndex<>+8(SB)/4, $2
+DATA laneIndex<>+12(SB)/4, $3
+DATA laneIndex<>+16(SB)/4, $4
+DATA laneIndex<>+20(SB)/4, $5
+DATA laneIndex<>+24(SB)/4, $6
+DATA laneIndex<>+28(SB)/4, $7
+GLOBL laneIndex<>(SB), RODATA|NOPTR, $32
 
 // Offsets of the span fields the span-list kernels read (a test holds
 // them to the Go struct).
@@ -561,14 +569,8 @@ chebLoop:
 	CMPQ AX, CX
 	JLT chebLoop
 chebTail:
-	MOVQ n-8(SP), CX
-	CMPQ AX, CX
-	JGE chebSpan
-chebTailLoop:
-	CHEBYSHEV1
-	STEP_INDICES(1)
-	CMPQ AX, CX
-	JLT chebTailLoop
+	TAIL_MASK(chebSpan)
+	CHEBYSHEV_TAIL
 	JMP chebSpan
 chebDone:
 	VZEROUPPER
@@ -592,14 +594,8 @@ resLoop:
 	CMPQ AX, CX
 	JLT resLoop
 resTail:
-	MOVQ n-8(SP), CX
-	CMPQ AX, CX
-	JGE resSpan
-resTailLoop:
-	RESIDUAL1
-	STEP_INDICES(1)
-	CMPQ AX, CX
-	JLT resTailLoop
+	TAIL_MASK(resSpan)
+	RESIDUAL_TAIL
 	JMP resSpan
 resDone:
 	VZEROUPPER

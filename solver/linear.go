@@ -95,9 +95,9 @@ type linearSolver interface {
 	// moved returns the bytes moved to and from memory so far, by a model
 	// of each pass (bytes per part cell).
 	moved() float64
-	// cycles returns the wall time spent in multigrid cycles so far and
-	// the bytes they moved, by the same model (0 without multigrid).
-	cycles() (seconds, bytes float64)
+	// cycles returns what the multigrid cycles cost so far (zero without
+	// multigrid).
+	cycles() CycleCost
 	// memory returns the bytes of the solver's own arrays.
 	memory() int
 }
@@ -260,7 +260,7 @@ func (s *jacobiCG) solve(ctx context.Context, a *stencil, b, x []float64, tol fl
 
 func (s *jacobiCG) moved() float64 { return s.bytes }
 
-func (s *jacobiCG) cycles() (seconds, bytes float64) { return 0, 0 }
+func (s *jacobiCG) cycles() CycleCost { return CycleCost{} }
 
 func (s *jacobiCG) memory() int { return 8 * (len(s.r) + len(s.p) + len(s.q) + len(s.invDiag)) }
 

@@ -22,16 +22,13 @@ type Measurement struct {
 	// MemoryBytes is what the solver's arrays hold: state, operator,
 	// linear solver.
 	MemoryBytes int
-	// CycleSeconds and CycleBytesMoved are the part of Seconds spent in
-	// multigrid V-cycles and the bytes those moved, by the same model (0
-	// for the Jacobi reference). The model counts each array once per
-	// fused sweep of a level, however many passes the sweep runs.
-	CycleSeconds, CycleBytesMoved float64
-	// PassCycleSeconds and PassCycleBytesMoved are the same for the same
-	// step solved again with every pass of the V-cycles run on its own
-	// (MeasureStep only; 0 elsewhere): each pass then really moves its
-	// operands to and from memory, and the model counts them pass by pass.
-	PassCycleSeconds, PassCycleBytesMoved float64
+	// Cycles is the part of Seconds spent in multigrid V-cycles and their
+	// traffic by the same model (zero for the Jacobi reference).
+	Cycles CycleCost
+	// PassByPass is the same for the same step solved again with every
+	// pass of the V-cycles run on its own, each then really moving its
+	// operands to and from memory (MeasureStep only; zero elsewhere).
+	PassByPass CycleCost
 }
 
 // MeasureStep times one backward-Euler step of length dt from p's initial
@@ -65,8 +62,7 @@ func MeasureStep(ctx context.Context, p *Problem, dt float64, repeat int) (Measu
 		fastest := math.Inf(1)
 		for range max(1, repeat) {
 			r.initialState()
-			moved := r.lin.moved()
-			cycleSeconds, cycleBytes := r.lin.cycles()
+			moved, cycles := r.lin.moved(), r.lin.cycles()
 			start := time.Now()
 			it, err := r.step(ctx, 0, dt, 0, backwardEulerCoefficients)
 			seconds := time.Since(start).Seconds()
@@ -81,13 +77,12 @@ func MeasureStep(ctx context.Context, p *Problem, dt float64, repeat int) (Measu
 				continue
 			}
 			fastest = seconds
-			s, b := r.lin.cycles()
+			cost := r.lin.cycles().since(cycles)
 			if passByPass {
-				m.PassCycleSeconds, m.PassCycleBytesMoved = s-cycleSeconds, b-cycleBytes
+				m.PassByPass = cost
 				continue
 			}
-			m.Seconds, m.Iterations, m.BytesMoved = seconds, int64(it), r.lin.moved()-moved
-			m.CycleSeconds, m.CycleBytesMoved = s-cycleSeconds, b-cycleBytes
+			m.Seconds, m.Iterations, m.BytesMoved, m.Cycles = seconds, int64(it), r.lin.moved()-moved, cost
 		}
 	}
 	return m, nil
@@ -106,10 +101,9 @@ func MeasureRun(ctx context.Context, p *Problem) (Measurement, error) {
 	if err != nil {
 		return Measurement{}, err
 	}
-	cycleSeconds, cycleBytes := r.lin.cycles()
 	return Measurement{
 		Cells: r.g.PartCells(), Steps: out.Steps, Iterations: out.TotalIterations, Seconds: seconds,
 		BytesMoved: r.lin.moved(), MemoryBytes: r.memory(),
-		CycleSeconds: cycleSeconds, CycleBytesMoved: cycleBytes,
+		Cycles: r.lin.cycles(),
 	}, nil
 }

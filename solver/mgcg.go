@@ -54,7 +54,7 @@ func newMultigridCG(ws *workers, slabs [][]span, lay *layout, a *stencil, dims [
 
 func (s *multigridCG) moved() float64 { return s.bytes + s.mg.moved }
 
-func (s *multigridCG) cycles() (seconds, bytes float64) { return s.mg.cycleSeconds, s.mg.cycleBytes }
+func (s *multigridCG) cycles() CycleCost { return s.mg.cost }
 
 func (s *multigridCG) memory() int {
 	return 8*(len(s.r)+len(s.p)+len(s.q)) + s.mg.memory()

@@ -162,9 +162,23 @@ type multigrid struct {
 	// reference `soak bench` holds the fused sweeps against. The result
 	// is the same to the last bit.
 	passByPass bool
-	// cycleSeconds and cycleBytes are the wall time of the V-cycles so
-	// far and the bytes they moved (set-up left out).
-	cycleSeconds, cycleBytes float64
+	// cost is what the V-cycles so far took (set-up left out).
+	cost CycleCost
+}
+
+// CycleCost is the wall time of multigrid V-cycles and their memory
+// traffic by the two counts of the model below: Bytes as the cycles ran
+// (each array once per fused sweep of a level), PassBytes as STREAM counts
+// a kernel's traffic, each pass (smoothing step, residual, transfer)
+// reading and writing its own operands whether or not an earlier pass
+// left them in cache. The two are equal when the cycles run pass by pass.
+type CycleCost struct {
+	Seconds, Bytes, PassBytes float64
+}
+
+// since returns the cost from before to c.
+func (c CycleCost) since(before CycleCost) CycleCost {
+	return CycleCost{c.Seconds - before.Seconds, c.Bytes - before.Bytes, c.PassBytes - before.PassBytes}
 }
 
 // newMultigrid builds the hierarchy over the finest level, whose part
@@ -353,8 +367,8 @@ func (mg *multigrid) setSmoother(l *mgLevel) {
 func (mg *multigrid) apply() {
 	start, before := time.Now(), mg.moved
 	mg.cycle(mg.levels[0])
-	mg.cycleSeconds += time.Since(start).Seconds()
-	mg.cycleBytes += mg.moved - before
+	mg.cost.Seconds += time.Since(start).Seconds()
+	mg.cost.Bytes += mg.moved - before
 }
 
 func (mg *multigrid) cycle(l *mgLevel) {
@@ -362,11 +376,12 @@ func (mg *multigrid) cycle(l *mgLevel) {
 		mg.solveCoarsest(l)
 		return
 	}
-	mg.moved += mg.runWavefront(l.pre, bytesPre)
+	mg.runWavefront(l.pre, bytesPre)
 	mg.run(l.next, l.restrictTask)
 	mg.moved += bytesRestrict * float64(l.cells)
+	mg.cost.PassBytes += bytesRestrict * float64(l.cells)
 	mg.cycle(l.next)
-	mg.moved += mg.runWavefront(l.post, bytesPost)
+	mg.runWavefront(l.post, bytesPost)
 }
 
 // runStage runs one wavefront stage on the spans of one plane of slab w.

@@ -92,24 +92,30 @@ func (f *wavefront) sweep(w int) {
 	}
 }
 
-// runWavefront runs the wavefront over every slab of its level and
-// returns the bytes it moved by the traffic model: one sweep of memory, or
-// one per stage when the multigrid runs pass by pass.
-func (mg *multigrid) runWavefront(f *wavefront, sweepBytes float64) float64 {
+// runWavefront runs the wavefront over every slab of its level and counts
+// its traffic by the model: one sweep of memory as it ran (the stages
+// of one pass each when the multigrid runs pass by pass), and the stages'
+// own passes in the per-pass count.
+func (mg *multigrid) runWavefront(f *wavefront, sweepBytes float64) {
+	cells := float64(f.l.cells)
+	passes := 0.0
+	for _, st := range f.stages {
+		passes += st.kind.passBytes()
+	}
+	mg.cost.PassBytes += passes * cells
 	if mg.passByPass {
-		moved := 0.0
-		for s, task := range f.passTasks {
+		for _, task := range f.passTasks {
 			mg.run(f.l, task)
-			moved += f.stages[s].kind.passBytes()
 		}
-		return moved * float64(f.l.cells)
+		mg.moved += passes * cells
+		return
 	}
 	for s := range len(f.stages) - 1 {
 		f.band = s
 		mg.run(f.l, f.bandTask)
 	}
 	mg.run(f.l, f.sweepTask)
-	return sweepBytes * float64(f.l.cells)
+	mg.moved += sweepBytes * cells
 }
 
 // passBytes is what a stage of this kind reads and writes per part cell

@@ -64,14 +64,18 @@ type Result struct {
 	SecondsPerStep          float64 `json:"seconds_per_step"`
 	CellIterationsPerSecond float64 `json:"cell_iterations_per_second"`
 	BandwidthGBs            float64 `json:"bandwidth_gbs"` // linear solver's modelled traffic / time
-	// CycleGBs is the multigrid V-cycles' modelled traffic over their own
-	// wall time, set-up and the CG passes left out; the model counts each
-	// array once per fused sweep of a level.
+	// CycleGBs is the multigrid V-cycles' traffic counted as STREAM counts
+	// a kernel's, each pass of the cycle (smoothing step, residual,
+	// transfer) reading and writing its own operands, over the cycles'
+	// wall time (set-up and the CG passes left out). SweepGBs counts the
+	// traffic as the solver's fused sweeps make it instead, each array
+	// once per sweep of a level, however many passes the sweep runs.
 	CycleGBs float64 `json:"cycle_gbs"`
-	// PassCycleGBs is the same for the block steps solved again with every
-	// pass of the V-cycles on its own, each moving its operands (the
-	// in-run reference of the fused sweeps; 0 for the whole run), and
-	// FusedSpeedup its cycle time over the fused cycles'.
+	SweepGBs float64 `json:"sweep_gbs"`
+	// PassCycleGBs is the traffic over the wall time of the same V-cycles
+	// run pass by pass, each pass then really moving its operands to and
+	// from memory (the in-run reference of the fused sweeps, block steps
+	// only), and FusedSpeedup its cycle time over the fused cycles'.
 	PassCycleGBs            float64 `json:"pass_cycle_gbs"`
 	FusedSpeedup            float64 `json:"fused_speedup"`
 	TriadGBs                float64 `json:"triad_gbs"`
@@ -178,13 +182,14 @@ func measured(measure func(preconditioner string) (solver.Measurement, error)) (
 	if err != nil {
 		return Result{}, fmt.Errorf("jacobi reference: %w", err)
 	}
-	if mg.Steps == 0 || ref.Steps == 0 || !(mg.Seconds > 0) || !(mg.CycleSeconds > 0) {
+	cycles, passes := mg.Cycles, mg.PassByPass
+	if mg.Steps == 0 || ref.Steps == 0 || !(mg.Seconds > 0) || !(cycles.Seconds > 0) {
 		return Result{}, errors.New("no step was timed")
 	}
 	steps := float64(mg.Steps)
 	var passGBs, fused float64
-	if mg.PassCycleSeconds > 0 {
-		passGBs, fused = mg.PassCycleBytesMoved/mg.PassCycleSeconds/1e9, mg.PassCycleSeconds/mg.CycleSeconds
+	if passes.Seconds > 0 {
+		passGBs, fused = passes.Bytes/passes.Seconds/1e9, passes.Seconds/cycles.Seconds
 	}
 	return Result{
 		PassCycleGBs: passGBs, FusedSpeedup: fused,
@@ -193,7 +198,8 @@ func measured(measure func(preconditioner string) (solver.Measurement, error)) (
 		SecondsPerStep:          mg.Seconds / steps,
 		CellIterationsPerSecond: float64(mg.Cells) * float64(mg.Iterations) / mg.Seconds,
 		BandwidthGBs:            mg.BytesMoved / mg.Seconds / 1e9,
-		CycleGBs:                mg.CycleBytesMoved / mg.CycleSeconds / 1e9,
+		CycleGBs:                cycles.PassBytes / cycles.Seconds / 1e9,
+		SweepGBs:                cycles.Bytes / cycles.Seconds / 1e9,
 		BytesPerCell:            float64(mg.MemoryBytes) / float64(mg.Cells),
 		ReferenceIterations:     float64(ref.Iterations) / float64(ref.Steps),
 		ReferenceSecondsPerStep: ref.Seconds / float64(ref.Steps),
@@ -296,8 +302,8 @@ func WriteText(w io.Writer, results []Result) error {
 	if _, err := fmt.Fprintf(w, "threads %d, triad bandwidth %.1f GB/s\n", r0.Threads, r0.TriadGBs); err != nil {
 		return err
 	}
-	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %7s %6s %6s  %6s %9s %7s\n",
-		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "cycle%", "pass%", "fused",
+	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %7s %7s %6s %6s  %6s %9s %7s\n",
+		"case", "Fo", "cells", "iter", "s/step", "cell·it/s", "GB/s", "triad%", "cycle%", "sweep%", "pass%", "fused",
 		"B/cell", "ref it", "ref s", "speedup"); err != nil {
 		return err
 	}
@@ -306,9 +312,9 @@ func WriteText(w io.Writer, results []Result) error {
 		if r.PassCycleGBs > 0 {
 			pass, fused = fmt.Sprintf("%.0f%%", 100*r.PassCycleGBs/r.TriadGBs), fmt.Sprintf("%.2f×", r.FusedSpeedup)
 		}
-		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f%% %7s %6s %6.0f  %6.1f %9.3f %6.1f×\n",
+		if _, err := fmt.Fprintf(w, "%-28s %6.4g %9d %6.1f %9.3f %12.3g %7.1f %6.0f%% %6.0f%% %6.0f%% %7s %6s %6.0f  %6.1f %9.3f %6.1f×\n",
 			r.Case, r.CellFourier, r.Cells, r.Iterations, r.SecondsPerStep, r.CellIterationsPerSecond,
-			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, 100*r.CycleGBs/r.TriadGBs, pass, fused,
+			r.BandwidthGBs, 100*r.BandwidthGBs/r.TriadGBs, 100*r.CycleGBs/r.TriadGBs, 100*r.SweepGBs/r.TriadGBs, pass, fused,
 			r.BytesPerCell, r.ReferenceIterations, r.ReferenceSecondsPerStep, r.Speedup); err != nil {
 			return err
 		}

@@ -26,12 +26,17 @@ func TestRunSmall(t *testing.T) {
 	for _, r := range results {
 		for name, v := range map[string]float64{
 			"iterations": r.Iterations, "seconds_per_step": r.SecondsPerStep, "reference_seconds_per_step": r.ReferenceSecondsPerStep,
-			"bandwidth_gbs": r.BandwidthGBs, "cycle_gbs": r.CycleGBs, "triad_gbs": r.TriadGBs, "bytes_per_cell": r.BytesPerCell,
+			"bandwidth_gbs": r.BandwidthGBs, "cycle_gbs": r.CycleGBs, "sweep_gbs": r.SweepGBs, "triad_gbs": r.TriadGBs, "bytes_per_cell": r.BytesPerCell,
 			"cell_iterations_per_second": r.CellIterationsPerSecond,
 		} {
 			if !(v > 0) || math.IsInf(v, 0) {
 				t.Errorf("%s: %s = %g, want a positive number", r.Case, name, v)
 			}
+		}
+		// Counted pass by pass, the cycles move more than their fused
+		// sweeps do.
+		if r.CycleGBs < 2*r.SweepGBs {
+			t.Errorf("%s: cycles %g GB/s counted pass by pass, %g GB/s by their sweeps", r.Case, r.CycleGBs, r.SweepGBs)
 		}
 		if r.Iterations >= r.ReferenceIterations {
 			t.Errorf("%s: multigrid %g iterations per step, Jacobi %g", r.Case, r.Iterations, r.ReferenceIterations)

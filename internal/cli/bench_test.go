@@ -23,7 +23,7 @@ func TestBenchJSON(t *testing.T) {
 	}
 	for _, c := range cases {
 		for _, key := range []string{"case", "n", "cell_fourier", "cells", "iterations", "seconds_per_step",
-			"reference_seconds_per_step", "bandwidth_gbs", "cycle_gbs", "pass_cycle_gbs", "fused_speedup", "triad_gbs"} {
+			"reference_seconds_per_step", "bandwidth_gbs", "cycle_gbs", "sweep_gbs", "pass_cycle_gbs", "fused_speedup", "triad_gbs"} {
 			if _, ok := c[key]; !ok {
 				t.Errorf("case %v lacks %q", c["case"], key)
 			}

@@ -32,7 +32,7 @@ func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32)
 func prolongAVX(parents int, row, scale, x *float32)
 
 //go:noescape
-func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool)
+func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32)
 
 //go:noescape
 func chebyshevSpansAVX(spans *span, count int, x, gx, gy, gz, inv, b, d, dst *float32, cr, cd float32)

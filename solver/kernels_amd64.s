@@ -493,9 +493,9 @@ prolDone:
 	VZEROUPPER
 	RET
 
-// func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool)
-// dst = w₀·r₀ + w₁·r₁ + w₂·r₂ + w₃·r₃, plus dst's own value when add.
-TEXT ·blend4AVX(SB), NOSPLIT, $0-57
+// func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32)
+// dst = w₀·r₀ + w₁·r₁ + w₂·r₂ + w₃·r₃.
+TEXT ·blend4AVX(SB), NOSPLIT, $0-56
 	MOVQ n+0(FP), CX
 	ANDQ $-8, CX
 	MOVQ w+8(FP), R9
@@ -508,7 +508,6 @@ TEXT ·blend4AVX(SB), NOSPLIT, $0-57
 	MOVQ r2+32(FP), R8
 	MOVQ r3+40(FP), R10
 	MOVQ dst+48(FP), R11
-	MOVBLZX add+56(FP), DX
 	XORQ AX, AX
 	CMPQ AX, CX
 	JGE blendTail
@@ -518,10 +517,6 @@ blendLoop:
 	VFMADD231PS (R8)(AX*4), Y14, Y0
 	VFMADD231PS (R10)(AX*4), Y15, Y1
 	VADDPS Y1, Y0, Y0
-	TESTQ DX, DX
-	JZ blendStore
-	VADDPS (R11)(AX*4), Y0, Y0
-blendStore:
 	VMOVUPS Y0, (R11)(AX*4)
 	ADDQ $8, AX
 	CMPQ AX, CX
@@ -536,10 +531,6 @@ blendTailLoop:
 	VFMADD231SS (R8)(AX*4), X14, X0
 	VFMADD231SS (R10)(AX*4), X15, X1
 	VADDSS X1, X0, X0
-	TESTQ DX, DX
-	JZ blendStoreOne
-	VADDSS (R11)(AX*4), X0, X0
-blendStoreOne:
 	VMOVSS X0, (R11)(AX*4)
 	INCQ AX
 	CMPQ AX, CX

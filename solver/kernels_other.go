@@ -42,7 +42,7 @@ func prolongAVX(parents int, row, scale, x *float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 
-func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32, add bool) {
+func blend4AVX(n int, w *[4]float32, r0, r1, r2, r3, dst *float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 

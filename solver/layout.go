@@ -43,17 +43,6 @@ func (l *layout) inRow(r, x int) (int, bool) {
 	return 0, false
 }
 
-// covering returns the position of cell lo of row r when one run of the
-// row keeps every cell of [lo, hi).
-func (l *layout) covering(r, lo, hi int) (int, bool) {
-	for _, rn := range l.runs[l.first[r]:l.first[r+1]] {
-		if int(rn.lo) <= lo && hi <= int(rn.hi) {
-			return int(rn.pos) + lo - int(rn.lo), true
-		}
-	}
-	return 0, false
-}
-
 // neighbour returns the position of cell x of row r, which the layout
 // keeps for the part cell beside it, or of the zero row when r keeps
 // nothing.

@@ -73,10 +73,16 @@ type mgLevel struct {
 	// in the part), per cell; nil on the coarsest level.
 	scale []float32
 	// coarseRow (per slab of this level) and fineRow (per slab of the
-	// next) are the blended rows of prolong and restrict, two cells longer
-	// than a row of the level they blend (and a vector longer, coarseRow),
-	// their ends 0.
+	// next) are the blended rows of prolong and the gathered rows of
+	// restrict, two cells longer than a row of the level they hold (and a
+	// vector longer, coarseRow), their ends 0.
 	coarseRow, fineRow [][]float32
+	// zSpans are the part spans of each z-plane (views of the slabs);
+	// gathered (a coarse row) and sums (three dense coarse planes) are
+	// restrictPlanes' rows and planes of sums, per slab of the next level.
+	zSpans                   [][]span
+	gathered, sums, planeRow [][]float32
+	planeRestrict            bool
 	// coarsenSums (per slab of the next level) are coarsen's float64 sums
 	// over a coarse span: own terms and the three conductances.
 	coarsenSums [][4][]float64
@@ -216,7 +222,15 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]s
 		for range l.slabs {
 			l.coarseRow = append(l.coarseRow, make([]float32, cn[0]+2+8)) // 8 for prolongAVX's loads
 		}
+		l.zSpans = make([][]span, l.n[2])
+		for _, planes := range l.planes {
+			for _, p := range planes {
+				l.zSpans[p[0].z] = p
+			}
+		}
 		for range c.slabs {
+			l.gathered = append(l.gathered, make([]float32, cn[0]))
+			l.sums = append(l.sums, make([]float32, 3*cn[0]*cn[1]))
 			l.fineRow = append(l.fineRow, make([]float32, l.n[0]+3))
 			var sums [4][]float64
 			for i := range sums {
@@ -545,7 +559,7 @@ func (l *mgLevel) prolong(w int, spans []span) {
 		// interpolation's single-parent case), so every row is a kept one.
 		m := hi - lo
 		blend4(l.vector, &[4]float32{wy0 * wz0, wy0 * wz1, wy1 * wz0, wy1 * wz1},
-			&[4][]float32{cx[r00 : r00+m], cx[r01 : r01+m], cx[r10 : r10+m], cx[r11 : r11+m]}, row[lo+1:hi+1], false)
+			&[4][]float32{cx[r00 : r00+m], cx[r01 : r01+m], cx[r10 : r10+m], cx[r11 : r11+m]}, row[lo+1:hi+1])
 		xs, sc := x[sp.cp:sp.cp+sp.hi-sp.lo], scale[sp.at:sp.at+sp.hi-sp.lo]
 		sc = sc[:len(xs)]
 		if f[0] == 1 {
@@ -600,75 +614,6 @@ func restriction(I, factor, fineN int) (idx [4]int, wt [4]float32, n int) {
 		}
 	}
 	return idx, wt, n
-}
-
-// restrict sets the coarse right-hand side b = Pᵀ·(scaled fine residual)
-// on coarse slab w. For each coarse span it first blends the up to 16
-// fine rows that feed it (weights along y and z) into one row, zero at
-// both ends, then gathers along x with the weights 1/4, 3/4, 3/4, 1/4.
-// The fine residual is 0 outside the part, so a blended row may run over
-// cells outside it.
-func (l *mgLevel) restrict(w int) {
-	c := l.next
-	f := l.factor
-	d := l.d
-	row := l.fineRow[w] // row[i+1] is fine cell i; row[0] and the end stay 0
-	for i, sp := range c.slabs[w] {
-		if l.weighted && l.drawsOnWeighted(&sp) {
-			l.restrictWeighted(&c.slabs[w][i])
-			continue
-		}
-		ys, wys, ny := restriction(sp.y, f[1], l.n[1])
-		zs, wzs, nz := restriction(sp.z, f[2], l.n[2])
-		first, last := sp.x, sp.x+sp.hi-sp.lo-1
-		lo, hi := max(0, f[0]*first-1), min(l.n[0], f[0]*last+f[0]+1)
-		// Blend the fine rows, four (one z, every y) at a time where each
-		// row keeps the whole stretch; otherwise each over the cells its
-		// layout keeps: the residual is 0 at every other cell.
-		written := false
-		for a := range nz {
-			var w [4]float32
-			var fine [4][]float32
-			whole := true
-			for b := range 4 {
-				yb := ys[min(b, ny-1)] // rows past ny repeat the last with weight 0
-				at, ok := l.lay.covering(l.lay.row(yb, zs[a]), lo, hi)
-				if !ok {
-					whole = false
-					break
-				}
-				fine[b] = d[at : at+hi-lo]
-				if b < ny {
-					w[b] = wzs[a] * wys[b]
-				}
-			}
-			if whole {
-				blend4(l.vector, &w, &fine, row[lo+1:hi+1], written)
-				written = true
-				continue
-			}
-			if !written {
-				clear(row[lo+1 : hi+1])
-				written = true
-			}
-			for b := range ny {
-				r := l.lay.row(ys[b], zs[a])
-				for _, rn := range l.lay.runs[l.lay.first[r]:l.lay.first[r+1]] {
-					from, to := max(lo, int(rn.lo)), min(hi, int(rn.hi))
-					if from < to {
-						at := int(rn.pos) - int(rn.lo)
-						axpy(l.vector, wzs[a]*wys[b], d[at+from:at+to], row[from+1:to+1])
-					}
-				}
-			}
-		}
-		out := c.b[sp.at : sp.at+sp.hi-sp.lo]
-		if f[0] == 1 {
-			copy(out, row[first+1:last+2])
-			continue
-		}
-		gatherPairs(l.vector, row[2*first:], out) // row[2·first] is fine cell 2·first − 1
-	}
 }
 
 // coarsen sets the next level's conductances and own terms (in its d) on

@@ -1,0 +1,88 @@
+package solver
+
+// restrict sets the coarse right-hand side b = Pᵀ·(scaled fine
+// residual) on coarse slab w, going once through the fine planes that
+// feed the slab's coarse planes. Each fine row is gathered along x into
+// coarse cells (weights 1/4, 3/4, 3/4, 1/4), then added, with its weights
+// along y and z, into the up to four coarse rows it feeds; dense coarse
+// planes hold the sums until the last fine plane feeding them is done, and
+// the coarse spans then take their cells from them. The fine residual is
+// 0 outside the part, so only the part's spans are read.
+func (l *mgLevel) restrict(w int) {
+	c := l.next
+	f := l.factor
+	spans := c.slabs[w]
+	if len(spans) == 0 {
+		return
+	}
+	first, last := spans[0].z, spans[len(spans)-1].z
+	kLo, kHi := first, last
+	if f[2] == 2 {
+		kLo, kHi = max(0, 2*first-1), min(l.n[2]-1, 2*last+2)
+	}
+	ncx := c.n[0]
+	planeSize := ncx * c.n[1]
+	row, gathered, acc := l.fineRow[w], l.gathered[w], l.sums[w] // row[i+1] is fine cell i
+	// spans[:flushed] have their b; next is the first coarse plane whose
+	// sums are not yet taken.
+	flushed, next := 0, first
+	for k := kLo; k <= kHi; k++ {
+		zs := [2]int{}
+		zw := [2]float32{}
+		zs[0], zs[1], zw[0], zw[1] = interpolation(k, f[2], c.n[2])
+		plane := l.zSpans[k]
+		for i := 0; i < len(plane); {
+			j := i
+			y := plane[i].y
+			for j < len(plane) && plane[j].y == y {
+				sp := &plane[j]
+				copy(row[sp.x+1:sp.x+1+sp.hi-sp.lo], l.d[sp.cp:sp.cp+sp.hi-sp.lo])
+				j++
+			}
+			xmin, xmax := plane[i].x, plane[j-1].x+plane[j-1].hi-plane[j-1].lo
+			var seg []float32
+			lo := xmin
+			if f[0] == 2 {
+				lo = max(0, (xmin-1)>>1)
+				seg = gathered[lo:min(ncx, xmax>>1+1)]
+				gatherPairs(l.vector, row[2*lo:], seg)
+			} else {
+				seg = row[xmin+1 : xmax+1]
+			}
+			y0, y1, wy0, wy1 := interpolation(y, f[1], c.n[1])
+			for a := range 2 {
+				K := zs[a]
+				if zw[a] == 0 || K < first || K > last {
+					continue
+				}
+				sums := acc[(K%3)*planeSize : (K%3+1)*planeSize]
+				if wy0 != 0 {
+					axpy(l.vector, zw[a]*wy0, seg, sums[y0*ncx+lo:y0*ncx+lo+len(seg)])
+				}
+				if wy1 != 0 {
+					axpy(l.vector, zw[a]*wy1, seg, sums[y1*ncx+lo:y1*ncx+lo+len(seg)])
+				}
+			}
+			clear(row[xmin+1 : xmax+1])
+			i = j
+		}
+		// The coarse planes whose last feeding fine plane this was (every
+		// one, a plane without part cells too, has its sums cleared).
+		for ; next <= last && min(l.n[2]-1, f[2]*next+2*(f[2]-1)) <= k; next++ {
+			sums := acc[(next%3)*planeSize : (next%3+1)*planeSize]
+			for ; flushed < len(spans) && spans[flushed].z == next; flushed++ {
+				sp := &spans[flushed]
+				n := sp.hi - sp.lo
+				copy(c.b[sp.at:sp.at+n], sums[sp.y*ncx+sp.x:sp.y*ncx+sp.x+n])
+			}
+			clear(sums)
+		}
+	}
+	if l.weighted {
+		for i := range spans {
+			if l.drawsOnWeighted(&spans[i]) {
+				l.restrictWeighted(&spans[i])
+			}
+		}
+	}
+}

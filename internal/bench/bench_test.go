@@ -15,13 +15,21 @@ func TestRunSmall(t *testing.T) {
 	t.Parallel()
 	const n, across = 12, 24
 	var seen int
+	var triads []float64
 	results, err := Run(context.Background(), Options{Sizes: []int{n}, PartCells: across, TriadElements: 1 << 16},
-		func(Result) error { seen++; return nil })
+		func(r Result) error { seen++; triads = append(triads, r.TriadGBs); return nil })
 	if err != nil {
 		t.Fatal(err)
 	}
 	if len(results) != 3 || seen != 3 {
 		t.Fatalf("%d results, %d reported; want 2 block steps and the part", len(results), seen)
+	}
+	// Every result holds the best triad of the run, at least what each
+	// saw when it was reported.
+	for i, r := range results {
+		if r.TriadGBs != results[0].TriadGBs || r.TriadGBs < triads[i] {
+			t.Errorf("%s: triad %g GB/s, first result's %g, reported with %g", r.Case, r.TriadGBs, results[0].TriadGBs, triads[i])
+		}
 	}
 	for _, r := range results {
 		for name, v := range map[string]float64{

@@ -23,8 +23,8 @@ func newBenchCmd(s streams) *cobra.Command {
 			"solver and with plain Jacobi-preconditioned CG in the same run. Prints iterations and seconds per step,\n" +
 			"cell·iterations per second, the solver's memory traffic against a triad (measured first and after every\n" +
 			"case, the best counting), the V-cycles' traffic counted per pass and as their fused sweeps make it, and\n" +
-			"memory per cell. Threads follow the CPUs the process may use. On a shared machine, compare the ratios: both solvers\n" +
-			"run in the same process within seconds of each other.",
+			"memory per cell. Threads follow the CPUs the process may use. On a shared machine, compare the ratios:\n" +
+			"both solvers run in the same process within seconds of each other.",
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if only != 0 && only < mesh.MinCellsAcross {

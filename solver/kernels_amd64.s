@@ -592,15 +592,25 @@ resDone:
 	VZEROUPPER
 	RET
 
-// func restrictRowAVX(n int, row, out *float32)
-// out[I] = ¼·(row[2I] + row[2I+3]) + ¾·(row[2I+1] + row[2I+2]) for I < n:
-// the gather along x of restriction, eight coarse cells at a time from
-// sixteen fine ones split into even and odd cells. The shuffles leave the
-// eight sums in the order 0 1 4 5 2 3 6 7, which one permute puts right.
-TEXT ·restrictRowAVX(SB), NOSPLIT, $0-24
+// func gatherAddAVX(n int, row *float32, w *[4]float32, d0, d1, d2, d3 *float32)
+// For I < n: g = ¼·(row[2I] + row[2I+3]) + ¾·(row[2I+1] + row[2I+2]) and
+// d_k[I] += w_k·g for k = 0 … 3: one fine row of restriction gathered
+// along x and added into the four coarse rows it feeds, eight coarse
+// cells at a time from sixteen fine ones split into even and odd cells.
+// The shuffles leave the eight sums in the order 0 1 4 5 2 3 6 7, which
+// one permute puts right.
+TEXT ·gatherAddAVX(SB), NOSPLIT, $0-56
 	MOVQ n+0(FP), CX
 	MOVQ row+8(FP), SI
-	MOVQ out+16(FP), DI
+	MOVQ w+16(FP), R9
+	VBROADCASTSS 0(R9), Y10
+	VBROADCASTSS 4(R9), Y11
+	VBROADCASTSS 8(R9), Y12
+	VBROADCASTSS 12(R9), Y13
+	MOVQ d0+24(FP), DI
+	MOVQ d1+32(FP), R8
+	MOVQ d2+40(FP), R10
+	MOVQ d3+48(FP), R11
 	VBROADCASTSS threeQuarters<>(SB), Y15
 	VBROADCASTSS quarter<>(SB), Y14
 	MOVQ CX, DX
@@ -608,8 +618,8 @@ TEXT ·restrictRowAVX(SB), NOSPLIT, $0-24
 	XORQ AX, AX // coarse cell
 	XORQ BX, BX // its first fine cell in row
 	CMPQ AX, DX
-	JGE gatherTail
-gatherLoop:
+	JGE gaddTail
+gaddLoop:
 	VMOVUPS (SI)(BX*4), Y0
 	VMOVUPS 32(SI)(BX*4), Y1
 	VMOVUPS 8(SI)(BX*4), Y2
@@ -623,26 +633,48 @@ gatherLoop:
 	VMULPS Y14, Y4, Y4
 	VFMADD231PS Y15, Y5, Y4
 	VPERMPD $0xD8, Y4, Y4
-	VMOVUPS Y4, (DI)(AX*4)
+	VMOVUPS (DI)(AX*4), Y0
+	VFMADD231PS Y4, Y10, Y0
+	VMOVUPS Y0, (DI)(AX*4)
+	VMOVUPS (R8)(AX*4), Y1
+	VFMADD231PS Y4, Y11, Y1
+	VMOVUPS Y1, (R8)(AX*4)
+	VMOVUPS (R10)(AX*4), Y2
+	VFMADD231PS Y4, Y12, Y2
+	VMOVUPS Y2, (R10)(AX*4)
+	VMOVUPS (R11)(AX*4), Y3
+	VFMADD231PS Y4, Y13, Y3
+	VMOVUPS Y3, (R11)(AX*4)
 	ADDQ $8, AX
 	ADDQ $16, BX
 	CMPQ AX, DX
-	JLT gatherLoop
-gatherTail:
+	JLT gaddLoop
+gaddTail:
 	CMPQ AX, CX
-	JGE gatherDone
-gatherTailLoop:
+	JGE gaddDone
+gaddTailLoop:
 	VMOVSS (SI)(BX*4), X4
 	VADDSS 12(SI)(BX*4), X4, X4
 	VMOVSS 4(SI)(BX*4), X5
 	VADDSS 8(SI)(BX*4), X5, X5
 	VMULSS X14, X4, X4
 	VFMADD231SS X15, X5, X4
-	VMOVSS X4, (DI)(AX*4)
+	VMOVSS (DI)(AX*4), X0
+	VFMADD231SS X4, X10, X0
+	VMOVSS X0, (DI)(AX*4)
+	VMOVSS (R8)(AX*4), X1
+	VFMADD231SS X4, X11, X1
+	VMOVSS X1, (R8)(AX*4)
+	VMOVSS (R10)(AX*4), X2
+	VFMADD231SS X4, X12, X2
+	VMOVSS X2, (R10)(AX*4)
+	VMOVSS (R11)(AX*4), X3
+	VFMADD231SS X4, X13, X3
+	VMOVSS X3, (R11)(AX*4)
 	INCQ AX
 	ADDQ $2, BX
 	CMPQ AX, CX
-	JLT gatherTailLoop
-gatherDone:
+	JLT gaddTailLoop
+gaddDone:
 	VZEROUPPER
 	RET

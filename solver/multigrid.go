@@ -77,12 +77,14 @@ type mgLevel struct {
 	// restrict, two cells longer than a row of the level they hold (and a
 	// vector longer, coarseRow), their ends 0.
 	coarseRow, fineRow [][]float32
-	// zSpans are the part spans of each z-plane (views of the slabs);
-	// gathered (a coarse row) and sums (three dense coarse planes) are
-	// restrictPlanes' rows and planes of sums, per slab of the next level.
-	zSpans                   [][]span
-	gathered, sums, planeRow [][]float32
-	planeRestrict            bool
+	// prolongPlans (per slab, in the slab's order of spans) are what
+	// prolong needs of the next level for each span.
+	prolongPlans [][]prolongPlan
+	// zSpans are the part spans of each z-plane (views of the slabs); sums
+	// (three dense coarse planes) and sink (a coarse row nothing reads)
+	// are restrict's, per slab of the next level.
+	zSpans     [][]span
+	sums, sink [][]float32
 	// coarsenSums (per slab of the next level) are coarsen's float64 sums
 	// over a coarse span: own terms and the three conductances.
 	coarsenSums [][4][]float64
@@ -229,7 +231,7 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]s
 			}
 		}
 		for range c.slabs {
-			l.gathered = append(l.gathered, make([]float32, cn[0]))
+			l.sink = append(l.sink, make([]float32, cn[0]))
 			l.sums = append(l.sums, make([]float32, 3*cn[0]*cn[1]))
 			l.fineRow = append(l.fineRow, make([]float32, l.n[0]+3))
 			var sums [4][]float64
@@ -247,6 +249,7 @@ func newMultigrid(ws *workers, a *stencil, dims [3]int, part []bool, slabs [][]s
 			l.rowWeighted = make([]bool, l.n[1]*l.n[2])
 			l.sidesTask = l.setSides
 		}
+		l.planProlong()
 		mg.interpolationScale(l)
 		mg.levels = append(mg.levels, c)
 		l, part = c, coarse
@@ -531,35 +534,30 @@ func interpolation(i, factor, coarseN int) (i0, i1 int, w0, w1 float32) {
 	return axisWeights(i, factor, coarseN, sideScale/4)
 }
 
-// prolong adds scale·P·(coarse x) to x on spans of the fine slab w. For each fine
-// span it first blends the up to four coarse rows it draws on (weights
-// along y and z) into one row, zero at both ends, then interpolates along
-// x: 3/4 of the parent and 1/4 of the parent's neighbour on the child's
-// side, which the zero ends drop at the box's ends.
+// prolong adds scale·P·(coarse x) to x on spans of the fine slab w. For
+// each fine span it first blends the up to four coarse rows it draws on
+// (weights along y and z, where its plan says) into one row, zero at both
+// ends, then interpolates along x: 3/4 of the parent and 1/4 of the
+// parent's neighbour on the child's side, which the zero ends drop at the
+// box's ends.
 func (l *mgLevel) prolong(w int, spans []span) {
 	c := l.next
 	f := l.factor
 	x, scale, cx := l.x, l.scale, c.x
 	row := l.coarseRow[w] // row[I+1] is coarse cell I; row[0] and the end stay 0
+	// spans is a run of slab w's spans, sliced from it, so its capacity
+	// tells where it starts; the plans follow the slab's order.
+	plans := l.prolongPlans[w][cap(l.slabs[w])-cap(spans):]
 	for i, sp := range spans {
 		if l.weighted && l.rowWeighted[sp.y+l.n[1]*sp.z] {
 			l.prolongWeighted(&spans[i])
 			continue
 		}
-		y0, y1, wy0, wy1 := interpolation(sp.y, f[1], c.n[1])
-		z0, z1, wz0, wz1 := interpolation(sp.z, f[2], c.n[2])
-		// The coarse rows keep every cell read here: the parents' row holds
-		// the parents and one cell beyond, the rows around it as much.
+		pl := &plans[i]
+		lo, m := int(pl.lo), int(pl.m)
+		blend4(l.vector, &pl.w, &[4][]float32{cx[pl.at[0] : int(pl.at[0])+m], cx[pl.at[1] : int(pl.at[1])+m],
+			cx[pl.at[2] : int(pl.at[2])+m], cx[pl.at[3] : int(pl.at[3])+m]}, row[lo+1:lo+1+m])
 		first, last := sp.x, sp.x+sp.hi-sp.lo-1
-		lo, hi := max(0, first/f[0]-1), min(c.n[0], last/f[0]+2)
-		cl := c.lay
-		r00, r01 := cl.neighbour(cl.row(y0, z0), lo), cl.neighbour(cl.row(y0, z1), lo)
-		r10, r11 := cl.neighbour(cl.row(y1, z0), lo), cl.neighbour(cl.row(y1, z1), lo)
-		// A weight of 0 comes with its row equal to the parents' (the
-		// interpolation's single-parent case), so every row is a kept one.
-		m := hi - lo
-		blend4(l.vector, &[4]float32{wy0 * wz0, wy0 * wz1, wy1 * wz0, wy1 * wz1},
-			&[4][]float32{cx[r00 : r00+m], cx[r01 : r01+m], cx[r10 : r10+m], cx[r11 : r11+m]}, row[lo+1:hi+1])
 		xs, sc := x[sp.cp:sp.cp+sp.hi-sp.lo], scale[sp.at:sp.at+sp.hi-sp.lo]
 		sc = sc[:len(xs)]
 		if f[0] == 1 {
@@ -594,6 +592,42 @@ func (l *mgLevel) prolong(w int, spans []span) {
 			I := (first + i) >> 1
 			xs[i] += sc[i] * (0.75*row[I+1] + 0.25*row[I])
 		}
+	}
+}
+
+// prolongPlan is what prolong needs of the next level for one fine span:
+// where the four coarse rows it blends hold coarse cell lo, their weights
+// along y and z, and how many coarse cells (m) from lo on it blends.
+type prolongPlan struct {
+	at    [4]int32
+	lo, m int32
+	w     [4]float32
+}
+
+// planProlong sets prolongPlans from the two levels' layouts. The coarse
+// rows keep every cell read: the parents' row holds the parents and one
+// cell beyond, the rows around it as much. A weight of 0 comes with its
+// row equal to the parents' (the interpolation's single-parent case), so
+// every row is a kept one.
+func (l *mgLevel) planProlong() {
+	c, f := l.next, l.factor
+	cl := c.lay
+	l.prolongPlans = make([][]prolongPlan, len(l.slabs))
+	for w, slab := range l.slabs {
+		plans := make([]prolongPlan, len(slab))
+		for i, sp := range slab {
+			y0, y1, wy0, wy1 := interpolation(sp.y, f[1], c.n[1])
+			z0, z1, wz0, wz1 := interpolation(sp.z, f[2], c.n[2])
+			first, last := sp.x, sp.x+sp.hi-sp.lo-1
+			lo, hi := max(0, first/f[0]-1), min(c.n[0], last/f[0]+2)
+			plans[i] = prolongPlan{
+				at: [4]int32{int32(cl.neighbour(cl.row(y0, z0), lo)), int32(cl.neighbour(cl.row(y0, z1), lo)),
+					int32(cl.neighbour(cl.row(y1, z0), lo)), int32(cl.neighbour(cl.row(y1, z1), lo))},
+				lo: int32(lo), m: int32(hi - lo),
+				w: [4]float32{wy0 * wz0, wy0 * wz1, wy1 * wz0, wy1 * wz1},
+			}
+		}
+		l.prolongPlans[w] = plans
 	}
 }
 

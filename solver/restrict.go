@@ -22,45 +22,57 @@ func (l *mgLevel) restrict(w int) {
 	}
 	ncx := c.n[0]
 	planeSize := ncx * c.n[1]
-	row, gathered, acc := l.fineRow[w], l.gathered[w], l.sums[w] // row[i+1] is fine cell i
+	row, sink, acc := l.fineRow[w], l.sink[w], l.sums[w] // row[i+1] is fine cell i
 	// spans[:flushed] have their b; next is the first coarse plane whose
 	// sums are not yet taken.
 	flushed, next := 0, first
 	for k := kLo; k <= kHi; k++ {
-		zs := [2]int{}
-		zw := [2]float32{}
+		var zs [2]int
+		var zw [2]float32
 		zs[0], zs[1], zw[0], zw[1] = interpolation(k, f[2], c.n[2])
 		plane := l.zSpans[k]
 		for i := 0; i < len(plane); {
-			j := i
-			y := plane[i].y
+			j, y := i, plane[i].y
 			for j < len(plane) && plane[j].y == y {
 				sp := &plane[j]
 				copy(row[sp.x+1:sp.x+1+sp.hi-sp.lo], l.d[sp.cp:sp.cp+sp.hi-sp.lo])
 				j++
 			}
 			xmin, xmax := plane[i].x, plane[j-1].x+plane[j-1].hi-plane[j-1].lo
-			var seg []float32
-			lo := xmin
-			if f[0] == 2 {
-				lo = max(0, (xmin-1)>>1)
-				seg = gathered[lo:min(ncx, xmax>>1+1)]
-				gatherPairs(l.vector, row[2*lo:], seg)
-			} else {
-				seg = row[xmin+1 : xmax+1]
-			}
+			// The four coarse rows the fine row feeds, with their weights;
+			// a row it does not feed (a weight of 0, or a plane of another
+			// slab) is the sink, which nothing reads.
 			y0, y1, wy0, wy1 := interpolation(y, f[1], c.n[1])
+			var weights [4]float32
+			var rows [4]int
 			for a := range 2 {
-				K := zs[a]
-				if zw[a] == 0 || K < first || K > last {
-					continue
+				for b, yb := range [2]struct {
+					J int
+					w float32
+				}{{y0, wy0}, {y1, wy1}} {
+					k, K := 2*a+b, zs[a]
+					rows[k] = -1
+					if wt := zw[a] * yb.w; wt != 0 && K >= first && K <= last {
+						weights[k], rows[k] = wt, (K%3)*planeSize+yb.J*ncx
+					}
 				}
-				sums := acc[(K%3)*planeSize : (K%3+1)*planeSize]
-				if wy0 != 0 {
-					axpy(l.vector, zw[a]*wy0, seg, sums[y0*ncx+lo:y0*ncx+lo+len(seg)])
+			}
+			if f[0] == 2 {
+				lo := max(0, (xmin-1)>>1)
+				n := min(ncx, xmax>>1+1) - lo
+				var dst [4][]float32
+				for k, r := range rows {
+					dst[k] = sink
+					if r >= 0 {
+						dst[k] = acc[r+lo : r+lo+n]
+					}
 				}
-				if wy1 != 0 {
-					axpy(l.vector, zw[a]*wy1, seg, sums[y1*ncx+lo:y1*ncx+lo+len(seg)])
+				gatherAdd(l.vector, row[2*lo:], &weights, &dst, n)
+			} else {
+				for k, r := range rows {
+					if r >= 0 {
+						axpy(l.vector, weights[k], row[xmin+1:xmax+1], acc[r+xmin:r+xmax])
+					}
 				}
 			}
 			clear(row[xmin+1 : xmax+1])

@@ -48,8 +48,8 @@ type Options struct {
 	// TriadElements is the length of each triad array: 2²⁴ by default
 	// (three arrays of 128 MiB, far beyond any cache).
 	TriadElements int
-	// Repeat is how many times each solver takes each block step, the
-	// fastest counting: 2 by default.
+	// Repeat is how many times each solver takes each block step and the
+	// part's whole run, the fastest counting: 2 by default.
 	Repeat int
 }
 
@@ -156,7 +156,7 @@ func Run(ctx context.Context, opt Options, each func(Result) error) ([]Result, e
 		}
 	}
 	if opt.PartCells > 0 {
-		r, err := partCase(ctx, opt.PartCells)
+		r, err := partCase(ctx, opt.PartCells, opt.Repeat)
 		if err != nil {
 			return results, fmt.Errorf("part: %w", err)
 		}
@@ -230,8 +230,9 @@ func stepCase(ctx context.Context, g *mesh.Grid, dt float64, repeat int) (Result
 }
 
 // partCase times a whole run of a ball of `across` cells in diameter with
-// a through bore of 30 % of it, cooling in air by convection and radiation.
-func partCase(ctx context.Context, across int) (Result, error) {
+// a through bore of 30 % of it, cooling in air by convection and
+// radiation, the fastest of `repeat` runs with each solver.
+func partCase(ctx context.Context, across, repeat int) (Result, error) {
 	d := float64(across) * cellSize
 	part := &mesh.Assembly{Bodies: []mesh.Body{
 		{Name: "ball", Solid: mesh.Sphere{Diameter: d}, Region: 1},
@@ -245,7 +246,17 @@ func partCase(ctx context.Context, across int) (Result, error) {
 	r, err := measured(func(pre string) (solver.Measurement, error) {
 		p := problem(g, air, partEnd, pre)
 		p.Stepping.Scheme, p.Stepping.MaxChange, p.Stepping.MaxStep = solver.BDF2, partMaxChange, partEnd/partSteps
-		return solver.MeasureRun(ctx, p)
+		var fastest solver.Measurement
+		for i := range max(1, repeat) {
+			m, err := solver.MeasureRun(ctx, p)
+			if err != nil {
+				return m, err
+			}
+			if i == 0 || m.Seconds < fastest.Seconds {
+				fastest = m
+			}
+		}
+		return fastest, nil
 	})
 	if err != nil {
 		return Result{}, err

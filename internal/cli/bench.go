@@ -72,7 +72,7 @@ func newBenchCmd(s streams) *cobra.Command {
 	f.IntVar(&only, "only", 0, "time only the block of this many cells along its edge")
 	f.IntVar(&part, "part", 100, "cells across the ball with a bore timed over a whole run; 0 leaves it out")
 	f.IntVar(&triadMiB, "triad-size", 128, "MiB per array of the bandwidth triad (three arrays)")
-	f.IntVar(&repeat, "repeat", 2, "times each solver takes each block step; the fastest counts")
+	f.IntVar(&repeat, "repeat", 2, "times each solver takes each block step and the part's whole run; the fastest counts")
 	f.BoolVar(&asJSON, "json", false, "print a JSON array, one object per case")
 	return cmd
 }

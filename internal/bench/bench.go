@@ -88,10 +88,10 @@ type Result struct {
 
 // Run measures the triad, then every case, calling each (when not nil)
 // with every result as soon as it is known. The triad is measured again
-// after every case, and every result returned holds the best of them all:
-// on a shared machine a single triad may fall in a busy moment, and the
-// traffic figures are read against what the machine's memory can do.
-// A result handed to each holds the best triad so far.
+// after every case, and each case is read against the higher of the two
+// triads either side of it: on a shared machine the memory a case gets
+// changes from minute to minute, and a triad taken at one moment for all
+// cases would flatter some and wrong others.
 func Run(ctx context.Context, opt Options, each func(Result) error) ([]Result, error) {
 	if opt.Sizes == nil {
 		opt.Sizes = []int{64, 128, 160}
@@ -120,20 +120,15 @@ func Run(ctx context.Context, opt Options, each func(Result) error) ([]Result, e
 	}
 	var results []Result
 	emit := func(r Result) error {
-		r.TriadGBs, r.Threads = triad, threads
-		results = append(results, r)
-		if each != nil {
-			if err := each(r); err != nil {
-				return err
-			}
-		}
-		again, err := Triad(ctx, threads, opt.TriadElements)
+		after, err := Triad(ctx, threads, opt.TriadElements)
 		if err != nil {
 			return err
 		}
-		triad = max(triad, again)
-		for i := range results {
-			results[i].TriadGBs = triad
+		r.TriadGBs, r.Threads = max(triad, after), threads
+		triad = after
+		results = append(results, r)
+		if each != nil {
+			return each(r)
 		}
 		return nil
 	}
@@ -324,7 +319,12 @@ func WriteText(w io.Writer, results []Result) error {
 		return nil
 	}
 	r0 := results[0]
-	if _, err := fmt.Fprintf(w, "threads %d, triad bandwidth %.1f GB/s\n", r0.Threads, r0.TriadGBs); err != nil {
+	lo, hi := r0.TriadGBs, r0.TriadGBs
+	for _, r := range results {
+		lo, hi = min(lo, r.TriadGBs), max(hi, r.TriadGBs)
+	}
+	if _, err := fmt.Fprintf(w, "threads %d, triad bandwidth %.1f–%.1f GB/s (each case against the higher triad either side of it)\n",
+		r0.Threads, lo, hi); err != nil {
 		return err
 	}
 	if _, err := fmt.Fprintf(w, "%-28s %6s %9s %6s %9s %12s %7s %7s %7s %7s %7s %6s %6s  %6s %9s %7s\n",

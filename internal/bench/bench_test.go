@@ -24,11 +24,10 @@ func TestRunSmall(t *testing.T) {
 	if len(results) != 3 || seen != 3 {
 		t.Fatalf("%d results, %d reported; want 2 block steps and the part", len(results), seen)
 	}
-	// Every result holds the best triad of the run, at least what each
-	// saw when it was reported.
+	// Each result is reported with the triad it is read against.
 	for i, r := range results {
-		if r.TriadGBs != results[0].TriadGBs || r.TriadGBs < triads[i] {
-			t.Errorf("%s: triad %g GB/s, first result's %g, reported with %g", r.Case, r.TriadGBs, results[0].TriadGBs, triads[i])
+		if !(r.TriadGBs > 0) || r.TriadGBs != triads[i] {
+			t.Errorf("%s: triad %g GB/s, reported with %g", r.Case, r.TriadGBs, triads[i])
 		}
 	}
 	for _, r := range results {

@@ -22,7 +22,7 @@ func newBenchCmd(s streams) *cobra.Command {
 			"numbers 20 and 2000, and a whole cooling run of a ball with a through bore, each with the multigrid\n" +
 			"solver and with plain Jacobi-preconditioned CG in the same run. Prints iterations and seconds per step,\n" +
 			"cell·iterations per second, the solver's memory traffic against a triad (measured first and after every\n" +
-			"case, the best counting), the V-cycles' traffic counted per pass and as their fused sweeps make it, and\n" +
+			"case, each case against the higher either side of it), the V-cycles' traffic counted per pass and as their fused sweeps make it, and\n" +
 			"memory per cell. Threads follow the CPUs the process may use. On a shared machine, compare the ratios:\n" +
 			"both solvers run in the same process within seconds of each other.",
 		Args: cobra.NoArgs,

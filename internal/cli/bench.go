@@ -21,10 +21,11 @@ func newBenchCmd(s streams) *cobra.Command {
 		Long: "Times one implicit step of a block of 1 mm steel-like cells (64³, 128³ and 160³) at cell Fourier\n" +
 			"numbers 20 and 2000, and a whole cooling run of a ball with a through bore, each with the multigrid\n" +
 			"solver and with plain Jacobi-preconditioned CG in the same run. Prints iterations and seconds per step,\n" +
-			"cell·iterations per second, the solver's memory traffic against a triad (measured first and after every\n" +
-			"case, each case against the higher either side of it), the V-cycles' traffic counted per pass and as their fused sweeps make it, and\n" +
-			"memory per cell. Threads follow the CPUs the process may use. On a shared machine, compare the ratios:\n" +
-			"both solvers run in the same process within seconds of each other.",
+			"cell·iterations per second, the solver's memory traffic against a triad (measured first and after\n" +
+			"every case, each case against the higher either side of it), the V-cycles' traffic counted per pass\n" +
+			"and as their fused sweeps make it, and memory per cell. Threads follow the CPUs the process may use.\n" +
+			"On a shared machine, compare the ratios: both solvers run in the same process within seconds of\n" +
+			"each other.",
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if only != 0 && only < mesh.MinCellsAcross {

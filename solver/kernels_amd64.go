@@ -26,7 +26,7 @@ func directionAVX(n int, beta float64, z *float32, p *float64)
 func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64)
 
 //go:noescape
-func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32)
+func fromZeroSpansAVX(spans *span, count int, b, inv, d, dst *float32, cr float32)
 
 //go:noescape
 func prolongAVX(parents int, row, scale, x *float32)

@@ -395,18 +395,37 @@ dotDone:
 	VZEROUPPER
 	RET
 
-// func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32)
-// d = dst = cr·b·inv: the first Chebyshev step from x = 0.
-TEXT ·fromZeroAVX(SB), NOSPLIT, $0-48
-	MOVQ n+0(FP), CX
-	ANDQ $-8, CX
-	VBROADCASTSS cr+8(FP), Y15
+// func fromZeroSpansAVX(spans *span, count int, b, inv, d, dst *float32, cr float32)
+// On each span: d = dst = cr·b·inv, the first Chebyshev step from x = 0;
+// b and inv from the span's at on, d and dst from its cp on. The last
+// vector of a span is masked, as in the stencil kernels.
+TEXT ·fromZeroSpansAVX(SB), NOSPLIT, $0-52
+	VBROADCASTSS cr+48(FP), Y15
+	MOVQ spans+0(FP), R10
+	MOVQ count+8(FP), R11
+fzSpan:
+	TESTQ R11, R11
+	JLE fzDone
+	DECQ R11
+	MOVQ SPAN_HI(R10), CX
+	SUBQ SPAN_LO(R10), CX
+	MOVQ SPAN_AT(R10), AX
+	SHLQ $2, AX
 	MOVQ b+16(FP), SI
+	ADDQ AX, SI
 	MOVQ inv+24(FP), DI
+	ADDQ AX, DI
+	MOVQ SPAN_CP(R10), AX
+	SHLQ $2, AX
 	MOVQ d+32(FP), R8
+	ADDQ AX, R8
 	MOVQ dst+40(FP), R9
+	ADDQ AX, R9
+	ADDQ $SPAN_SIZE, R10
+	MOVQ CX, DX
+	ANDQ $-8, DX
 	XORQ AX, AX
-	CMPQ AX, CX
+	CMPQ AX, DX
 	JGE fzTail
 fzLoop:
 	VMULPS (SI)(AX*4), Y15, Y0
@@ -414,20 +433,19 @@ fzLoop:
 	VMOVUPS Y0, (R8)(AX*4)
 	VMOVUPS Y0, (R9)(AX*4)
 	ADDQ $8, AX
-	CMPQ AX, CX
+	CMPQ AX, DX
 	JLT fzLoop
 fzTail:
-	MOVQ n+0(FP), CX
-	CMPQ AX, CX
-	JGE fzDone
-fzTailLoop:
-	VMULSS (SI)(AX*4), X15, X0
-	VMULSS (DI)(AX*4), X0, X0
-	VMOVSS X0, (R8)(AX*4)
-	VMOVSS X0, (R9)(AX*4)
-	ADDQ $1, AX
-	CMPQ AX, CX
-	JLT fzTailLoop
+	SUBQ AX, CX
+	JLE fzSpan
+	MOVQ CX, X13
+	VPBROADCASTD X13, Y13
+	VPCMPGTD laneIndex<>(SB), Y13, Y13
+	VMULPS (SI)(AX*4), Y15, Y0
+	VMULPS (DI)(AX*4), Y0, Y0
+	VMASKMOVPS Y0, Y13, (R8)(AX*4)
+	VMASKMOVPS Y0, Y13, (R9)(AX*4)
+	JMP fzSpan
 fzDone:
 	VZEROUPPER
 	RET

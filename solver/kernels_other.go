@@ -34,7 +34,7 @@ func dotAVX(n int, r *float64, z *float32, q *float64) (rz, zq float64) {
 	panic("solver: no vector kernels on this architecture")
 }
 
-func fromZeroAVX(n int, cr float32, b, inv, d, dst *float32) {
+func fromZeroSpansAVX(spans *span, count int, b, inv, d, dst *float32, cr float32) {
 	panic("solver: no vector kernels on this architecture")
 }
 

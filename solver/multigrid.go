@@ -459,14 +459,16 @@ func (l *mgLevel) checkReach() {
 // d = cr·D⁻¹b, dst = d.
 func (l *mgLevel) smoothFromZero(spans []span, dst []float32) {
 	cr := l.cr[0]
+	if l.vector {
+		if len(spans) > 0 {
+			fromZeroSpansAVX(&spans[0], len(spans), &l.b[0], &l.inv[0], &l.d[0], &dst[0], cr)
+		}
+		return
+	}
 	for _, sp := range spans {
 		n := sp.hi - sp.lo
 		b := win(l.b, sp.at, n)
 		inv, d, next := win(l.inv, sp.at, n)[:len(b)], win(l.d, sp.cp, n)[:len(b)], win(dst, sp.cp, n)[:len(b)]
-		if l.vector {
-			fromZeroAVX(n, cr, &b[0], &inv[0], &d[0], &next[0])
-			continue
-		}
 		for i := range b {
 			v := cr * b[i] * inv[i]
 			d[i], next[i] = v, v

@@ -507,6 +507,12 @@ func sphere(name string, cells uint32, endS float64) *soakv1.JobSpec {
 	}
 }
 
+// longJob is a job of several seconds' solving on one thread (about 3 s
+// on a 2-core machine of 2026), long enough to freeze or cut off its
+// worker a second into it with time to spare: the solver has grown faster
+// more than once, and a job that ends before the fault tests nothing.
+func longJob(name string) *soakv1.JobSpec { return sphere(name, 40, 4000) }
+
 func spheres(prefix string, n int, cells uint32, endS float64) []*soakv1.JobSpec {
 	specs := make([]*soakv1.JobSpec, n)
 	for i := range specs {

@@ -186,7 +186,7 @@ func TestWorkerCutOffFromNATSRejoins(t *testing.T) {
 	defer cancel()
 
 	cutOff := f.startWorker("cut-off", cutter.prefix(), "--nats", cutter.natsURL())
-	ids := f.submit(ctx, sphere("partition", 24, 4000))
+	ids := f.submit(ctx, longJob("partition"))
 	id := ids[0]
 	w := f.watch(ctx, ids)
 	cutOff.waitLog(t, startedLog, 20*time.Second)

@@ -75,8 +75,7 @@ func TestFrozenWorkersLateResultIsDiscarded(t *testing.T) {
 	ctx, cancel := context.WithTimeout(t.Context(), 90*time.Second)
 	defer cancel()
 	frozen := f.startWorker("frozen", nil)
-	// About 4 s of solving: long enough to freeze the worker mid-job.
-	ids := f.submit(ctx, sphere("freeze", 24, 4000))
+	ids := f.submit(ctx, longJob("freeze"))
 	id := ids[0]
 	w := f.watch(ctx, ids)
 	frozen.waitLog(t, startedLog, 20*time.Second)

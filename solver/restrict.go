@@ -15,18 +15,18 @@ func (l *mgLevel) restrict(w int) {
 	if len(spans) == 0 {
 		return
 	}
+	// The fine planes feeding coarse plane K, from interpolation's reach:
+	// 2K−1 … 2K+2 when z is halved, K alone otherwise.
+	firstFeeding := func(K int) int { return max(0, f[2]*K-f[2]/2) }
+	lastFeeding := func(K int) int { return min(l.n[2]-1, f[2]*K+2*(f[2]-1)) }
 	first, last := spans[0].z, spans[len(spans)-1].z
-	kLo, kHi := first, last
-	if f[2] == 2 {
-		kLo, kHi = max(0, 2*first-1), min(l.n[2]-1, 2*last+2)
-	}
 	ncx := c.n[0]
 	planeSize := ncx * c.n[1]
 	row, sink, acc := l.fineRow[w], l.sink[w], l.sums[w] // row[i+1] is fine cell i
 	// spans[:flushed] have their b; next is the first coarse plane whose
 	// sums are not yet taken.
 	flushed, next := 0, first
-	for k := kLo; k <= kHi; k++ {
+	for k := firstFeeding(first); k <= lastFeeding(last); k++ {
 		var zs [2]int
 		var zw [2]float32
 		zs[0], zs[1], zw[0], zw[1] = interpolation(k, f[2], c.n[2])
@@ -50,10 +50,10 @@ func (l *mgLevel) restrict(w int) {
 					J int
 					w float32
 				}{{y0, wy0}, {y1, wy1}} {
-					k, K := 2*a+b, zs[a]
-					rows[k] = -1
+					q, K := 2*a+b, zs[a]
+					rows[q] = -1
 					if wt := zw[a] * yb.w; wt != 0 && K >= first && K <= last {
-						weights[k], rows[k] = wt, (K%3)*planeSize+yb.J*ncx
+						weights[q], rows[q] = wt, (K%3)*planeSize+yb.J*ncx
 					}
 				}
 			}
@@ -61,17 +61,17 @@ func (l *mgLevel) restrict(w int) {
 				lo := max(0, (xmin-1)>>1)
 				n := min(ncx, xmax>>1+1) - lo
 				var dst [4][]float32
-				for k, r := range rows {
-					dst[k] = sink
+				for q, r := range rows {
+					dst[q] = sink
 					if r >= 0 {
-						dst[k] = acc[r+lo : r+lo+n]
+						dst[q] = acc[r+lo : r+lo+n]
 					}
 				}
 				gatherAdd(l.vector, row[2*lo:], &weights, &dst, n)
 			} else {
-				for k, r := range rows {
+				for q, r := range rows {
 					if r >= 0 {
-						axpy(l.vector, weights[k], row[xmin+1:xmax+1], acc[r+xmin:r+xmax])
+						axpy(l.vector, weights[q], row[xmin+1:xmax+1], acc[r+xmin:r+xmax])
 					}
 				}
 			}
@@ -80,7 +80,7 @@ func (l *mgLevel) restrict(w int) {
 		}
 		// The coarse planes whose last feeding fine plane this was (every
 		// one, a plane without part cells too, has its sums cleared).
-		for ; next <= last && min(l.n[2]-1, f[2]*next+2*(f[2]-1)) <= k; next++ {
+		for ; next <= last && lastFeeding(next) <= k; next++ {
 			sums := acc[(next%3)*planeSize : (next%3+1)*planeSize]
 			for ; flushed < len(spans) && spans[flushed].z == next; flushed++ {
 				sp := &spans[flushed]
